@@ -1,0 +1,98 @@
+/* rete_filters.h — classical vessel filters. Each reads a preprocessed one-channel
+ * image (values in [0,1], vessels darker than the fundus, as in the green channel) and
+ * an optional FOV mask, and returns a vessel map: float in [0,1], higher = more likely a
+ * vessel, 0 outside the FOV. Borders are read by clamping (nearest edge pixel) unless a
+ * function says otherwise; each filter's halo (how far it reads past a tile) is given so
+ * that tiled processing is exact.
+ */
+#ifndef RETE_FILTERS_H
+#define RETE_FILTERS_H
+
+#include "rete_image.h"
+
+G_BEGIN_DECLS
+
+/* Gaussian blur, separable, kernel truncated at 4 sigma, border mode as scipy.ndimage's
+ * 'reflect' (d c b a | a b c d | d c b a). sigma <= 0 returns a copy. Any channel count. */
+RETE_API ReteImage *rete_gaussian_blur (const ReteImage *image, double sigma, GError **error);
+
+/* ---- Frangi multiscale vesselness (Frangi et al., MICCAI 1998), 2-D form ----
+ * Hessian from Gaussian derivatives at each scale, scale-normalised by sigma^2;
+ * V = exp(-Rb^2 / (2 beta^2)) * (1 - exp(-S^2 / (2 c^2))) where |l1| <= |l2|,
+ * Rb = l1 / l2, S = sqrt(l1^2 + l2^2); V = 0 where l2 < 0 for dark vessels (l2 > 0 for
+ * bright); maximum over scales. */
+/* How the Hessian is taken at scale sigma. */
+typedef enum {
+  RETE_HESSIAN_GAUSSIAN_DERIVATIVES, /* second derivatives of the Gaussian, sampled as
+                                        scipy.ndimage.gaussian_filter (order=2 etc.) does
+                                        (Frangi 1998's definition; the default) */
+  RETE_HESSIAN_BLUR_THEN_DIFFERENCES /* Gaussian blur, then central differences taken twice
+                                        (numpy.gradient), as skimage 0.19's hessian_matrix
+                                        does; for exact checks against skimage.filters.frangi */
+} ReteHessianMethod;
+
+typedef struct {
+  double sigma_min;    /* smallest scale, pixels (default 1) */
+  double sigma_max;    /* largest scale, pixels (default 4) */
+  double sigma_step;   /* step between scales (default 1) */
+  double beta;         /* blob-versus-line sensitivity (default 0.5, as Frangi 1998) */
+  double c;            /* structure sensitivity; 0 = half the largest Hessian norm at each
+                          scale (Frangi 1998's suggestion; default 0) */
+  gboolean dark_vessels; /* TRUE for vessels darker than the background (default TRUE) */
+  ReteHessianMethod hessian; /* default RETE_HESSIAN_GAUSSIAN_DERIVATIVES */
+} ReteFrangiParams;
+
+RETE_API void rete_frangi_params_init (ReteFrangiParams *params);
+/* Vesselness as defined above, not rescaled (for checks against skimage.filters.frangi). */
+RETE_API ReteImage *rete_frangi_raw (const ReteImage *grey, const ReteFrangiParams *params,
+                                     GError **error);
+/* The vessel map: raw vesselness, 0 outside the FOV, scaled to [0,1] by its maximum inside. */
+RETE_API ReteImage *rete_vessel_frangi (const ReteImage *grey, const ReteImage *fov,
+                                        const ReteFrangiParams *params, GError **error);
+
+/* ---- Gaussian matched filter (Chaudhuri et al., IEEE TMI 1989) and its
+ * first-derivative-of-Gaussian variant (Zhang et al., Pattern Recognition 2010) ----
+ * Kernel K(x, y) = -exp(-x^2 / (2 sigma^2)) for |x| <= 3 sigma, |y| <= L/2, rotated to
+ * n_orientations angles in [0, pi), made zero-mean over its support. Response = maximum
+ * over orientations. The FDOG variant divides out the local mean of the derivative-of-
+ * Gaussian response (Zhang 2010, eq. 6-8) so that the step edges of bright lesions are
+ * suppressed. */
+typedef struct {
+  double sigma;        /* vessel cross-section scale, pixels (default 1.5) */
+  double length;       /* length L of the vessel piece the kernel matches, pixels (default 9) */
+  int n_orientations;  /* angles in [0, pi) (default 12: every 15 degrees, as Chaudhuri 1989) */
+  gboolean use_fdog;   /* FALSE: Chaudhuri's filter; TRUE: Zhang's MF-FDOG */
+  int fdog_window;     /* side of the mean filter applied to the FDOG response (default 31) */
+  double fdog_c;       /* weight c of the normalised FDOG mean in the threshold (default 2.3) */
+} ReteMatchedParams;
+
+RETE_API void rete_matched_params_init (ReteMatchedParams *params);
+/* Kernel of orientation index `k` (0..n_orientations-1): a square (size x size) float
+ * array, returned newly allocated, with *size set; zero-mean over its support; for
+ * checks of the kernel's properties. `fdog` selects the derivative-of-Gaussian kernel. */
+RETE_API float *rete_matched_kernel (const ReteMatchedParams *params, int k, gboolean fdog,
+                                     int *size, GError **error);
+/* The matched-filter response before any scaling (max over orientations). */
+RETE_API ReteImage *rete_matched_raw (const ReteImage *grey, const ReteMatchedParams *params,
+                                      GError **error);
+RETE_API ReteImage *rete_vessel_matched (const ReteImage *grey, const ReteImage *fov,
+                                         const ReteMatchedParams *params, GError **error);
+
+/* ---- Multiscale line detector (Nguyen et al., Pattern Recognition 2013) ----
+ * For each line length l = 1, 1 + step, ..., W: R_l = max over 12 orientations of the mean
+ * along a line of length l through the pixel, minus the mean of the W x W window,
+ * standardised inside the FOV; the combined response is the mean of all R_l and the
+ * (standardised) inverted green level (Nguyen 2013, eq. 4-5). */
+typedef struct {
+  int window;          /* W, odd, pixels (default 15) */
+  int step;            /* step between line lengths (default 2) */
+  int n_orientations;  /* default 12 */
+} ReteLineParams;
+
+RETE_API void rete_line_params_init (ReteLineParams *params);
+RETE_API ReteImage *rete_vessel_line (const ReteImage *grey, const ReteImage *fov,
+                                      const ReteLineParams *params, GError **error);
+
+G_END_DECLS
+
+#endif /* RETE_FILTERS_H */
