@@ -46,13 +46,29 @@ typedef struct {
   double *roc_false_positive_rate;
   double *roc_true_positive_rate;
   double *roc_threshold;
+  /* Added fields. */
+  char *auc_undefined_reason;   /* NULL when AUC is defined; else why not (owned) */
+  gsize n_reference_not_binary; /* reference values inside the mask that were neither 0 nor
+                                   1 (thresholded at 0.5: a caller may warn) */
+  gsize n_distinct_scores;      /* distinct scores inside the mask */
+  double max_score;             /* highest score inside the mask */
 } ReteAgreement;
 
 /* Figures of `scores` (one channel, finite, any range) against `reference` (one channel;
  * values >= 0.5 are vessel) inside `mask` (NULL = every pixel; values >= 0.5 are inside).
  * Fails with a message on mismatched sizes, an empty mask or non-finite scores. When the
- * reference has one class only inside the mask, AUC is NaN and *undefined_reason says why
- * (may be NULL); the other figures are still computed. O(n) in the pixel count. */
+ * reference has one class only inside the mask, AUC is NaN and auc_undefined_reason says
+ * why; the other figures are still computed. O(n) in the pixel count.
+ *
+ * Details: a reference that is not 0/1 is thresholded at 0.5 (n_reference_not_binary counts
+ * such values); NaN or infinity in the scores or the reference inside the mask is an error
+ * naming the first pixel (outside the mask such values are ignored). max_roc_points: 0 = no
+ * curve (arrays NULL), >= 2 = at most that many points, evenly thinned over the distinct
+ * scores, first (0,0) and last (1,1) always kept; 1 or negative is an error. The first
+ * point's threshold is max_score + 1 (as sklearn 1.2's roc_curve). A rate of the curve whose
+ * class is absent is NaN. Best thresholds are among the distinct scores; among equal values
+ * the higher threshold wins; they are NaN (rates NaN) when undefined: Dice without reference
+ * vessel, Youden's J without both classes. */
 RETE_API ReteAgreement *rete_agreement_compute (const ReteImage *scores, const ReteImage *reference,
                                                 const ReteImage *mask, double threshold,
                                                 int max_roc_points, GError **error);
