@@ -8,7 +8,24 @@
 
 #include "rete_filters.h"
 
+#include <string.h>
+
 G_BEGIN_DECLS
+
+/* Hot loops are compiled twice, for AVX2 and for the baseline, and the loader picks
+ * the one the processor runs (GCC function multi-versioning; AVX2 without FMA so that the
+ * two clones round alike). */
+#if defined(__GNUC__) && !defined(__clang__) && defined(__x86_64__) && defined(__linux__)
+#define RETE_VECTOR_CLONES __attribute__ ((target_clones ("avx2", "default")))
+#else
+#define RETE_VECTOR_CLONES
+#endif
+/* Eight floats as one vector (GCC/Clang vector extensions); the unaligned type is read
+ * and written through pointers: *(ReteV8u *) p. */
+typedef float ReteV8 __attribute__ ((vector_size (32)));
+typedef float ReteV8u __attribute__ ((vector_size (32), aligned (4)));
+#define rete_load8(p) (*(const ReteV8u *) (p))
+#define rete_store8(p, v) (*(ReteV8u *) (p) = (v))
 
 /* Truncation of every Gaussian kernel, in standard deviations (scipy.ndimage's default). */
 #define RETE_GAUSS_TRUNCATE 4.0
@@ -47,6 +64,10 @@ void rete_convolve_columns (const float *in, float *out, int width, int height, 
 
 /* Checks shared by the vessel filters: grey is one channel and finite; fov (may be NULL) is
  * one channel, same size, finite and not empty. */
+/* One output row y of the vertical pass over one plane (kernel as above, 2 radius + 1 taps). */
+void rete_convolve_column_row (const float *plane, int width, int height, int y,
+                               const float *kernel, int radius, int parity, float *dst);
+
 gboolean rete_filters_check_input (const ReteImage *grey, const ReteImage *fov,
                                    const char *method, GError **error);
 
@@ -62,6 +83,10 @@ ReteImage *rete_filters_fill_outside_fov (const ReteImage *grey, const ReteImage
  * clamp to 0). `low` = NAN uses the minimum inside the FOV. A response that is constant
  * inside the FOV gives 0 everywhere. */
 void rete_filters_finish_map (ReteImage *response, const ReteImage *fov, double low);
+
+/* Mean over a size x size window (size odd) of a one-channel image, 'reflect' borders
+ * (scipy.ndimage.uniform_filter). Halo: (size - 1) / 2. */
+ReteImage *rete_box_mean (const ReteImage *image, int size, GError **error);
 
 G_END_DECLS
 

@@ -51,7 +51,7 @@ typedef struct {
 } Pass;
 
 /* out[x] = sum_t k[t] in[x - t], over the taps t = -r..r. */
-static void
+RETE_VECTOR_CLONES static void
 rows_range (int first, int last, gpointer data)
 {
   const Pass *p = data;
@@ -85,33 +85,37 @@ rows_range (int first, int last, gpointer data)
   g_free (buffer);
 }
 
+RETE_VECTOR_CLONES void
+rete_convolve_column_row (const float *plane, int width, int height, int y,
+                          const float *kernel, int radius, int parity, float *dst)
+{
+  const float *k = kernel + radius;
+  const float *centre = plane + (gsize) y * width;
+  for (int x = 0; x < width; x++)
+    dst[x] = k[0] * centre[x];
+  for (int t = 1; t <= radius; t++)
+    {
+      const float *above = plane + (gsize) rete_reflect_index (y - t, height) * width;
+      const float *below = plane + (gsize) rete_reflect_index (y + t, height) * width;
+      float kt = k[t];
+      if (parity > 0)
+        for (int x = 0; x < width; x++)
+          dst[x] += kt * (above[x] + below[x]);
+      else
+        for (int x = 0; x < width; x++)
+          dst[x] += kt * (above[x] - below[x]);
+    }
+}
+
 static void
 columns_range (int first, int last, gpointer data)
 {
   const Pass *p = data;
-  int w = p->width, h = p->height, r = p->radius;
-  const float *k = p->kernel;
+  int w = p->width, h = p->height;
   for (int job = first; job < last; job++)
-    {
-      int plane = job / h, y = job % h;
-      const float *base = p->in + (gsize) plane * w * h;
-      float *dst = p->out + (gsize) job * w;
-      const float *centre = base + (gsize) y * w;
-      for (int x = 0; x < w; x++)
-        dst[x] = k[0] * centre[x];
-      for (int t = 1; t <= r; t++)
-        {
-          const float *above = base + (gsize) rete_reflect_index (y - t, h) * w;
-          const float *below = base + (gsize) rete_reflect_index (y + t, h) * w;
-          float kt = k[t];
-          if (p->parity > 0)
-            for (int x = 0; x < w; x++)
-              dst[x] += kt * (above[x] + below[x]);
-          else
-            for (int x = 0; x < w; x++)
-              dst[x] += kt * (above[x] - below[x]);
-        }
-    }
+    rete_convolve_column_row (p->in + (gsize) (job / h) * w * h, w, h, job % h,
+                              p->kernel - p->radius, p->radius, p->parity,
+                              p->out + (gsize) job * w);
 }
 
 void

@@ -43,20 +43,30 @@ typedef struct {
 } ReteFrangiParams;
 
 RETE_API void rete_frangi_params_init (ReteFrangiParams *params);
-/* Vesselness as defined above, not rescaled (for checks against skimage.filters.frangi). */
+/* Vesselness as defined above, not rescaled (for checks against skimage.filters.frangi).
+ * Halo: int (4 sigma_max + 0.5) pixels (+2 with RETE_HESSIAN_BLUR_THEN_DIFFERENCES); borders
+ * read as scipy.ndimage's 'reflect'. */
 RETE_API ReteImage *rete_frangi_raw (const ReteImage *grey, const ReteFrangiParams *params,
                                      GError **error);
-/* The vessel map: raw vesselness, 0 outside the FOV, scaled to [0,1] by its maximum inside. */
+/* The vessel map: raw vesselness, 0 outside the FOV, scaled to [0,1] by its maximum inside.
+ * The surround outside the FOV is first replaced by a smooth continuation of the fundus. */
 RETE_API ReteImage *rete_vessel_frangi (const ReteImage *grey, const ReteImage *fov,
                                         const ReteFrangiParams *params, GError **error);
 
 /* ---- Gaussian matched filter (Chaudhuri et al., IEEE TMI 1989) and its
  * first-derivative-of-Gaussian variant (Zhang et al., Pattern Recognition 2010) ----
  * Kernel K(x, y) = -exp(-x^2 / (2 sigma^2)) for |x| <= 3 sigma, |y| <= L/2, rotated to
- * n_orientations angles in [0, pi), made zero-mean over its support. Response = maximum
- * over orientations. The FDOG variant divides out the local mean of the derivative-of-
- * Gaussian response (Zhang 2010, eq. 6-8) so that the step edges of bright lesions are
- * suppressed. */
+ * n_orientations angles in [0, pi), made zero-mean over its support and scaled to unit
+ * energy (sum of squares 1, so that responses at different sigma compare fairly). Response
+ * H = maximum over orientations. The FDOG variant weighs in the local mean of the derivative-
+ * of-Gaussian response (Zhang 2010, eq. 6-8) so that the step edges of bright lesions are
+ * suppressed: with D = |FDOG response| at H's orientation, Dhat = (W x W mean of D) / its
+ * maximum, the map is H - c mean(H) Dhat, which exceeds c mean(H) exactly where Zhang's rule
+ * H >= (1 + Dhat) c mean(H) marks a vessel (means over the FOV).
+ * Halo: floor (hypot (3 sigma, L/2)) pixels, plus (fdog_window - 1) / 2 for MF-FDOG; borders
+ * read as scipy.ndimage's 'reflect'. Vessel maps: H (or the FDOG score) clamped at 0 and
+ * scaled by its maximum inside the FOV; the surround outside the FOV is first replaced by a
+ * smooth continuation of the fundus so that the rim of the FOV gives no response. */
 typedef struct {
   double sigma;        /* vessel cross-section scale, pixels (default 1.5) */
   double length;       /* length L of the vessel piece the kernel matches, pixels (default 9) */
@@ -82,10 +92,13 @@ RETE_API ReteImage *rete_vessel_matched (const ReteImage *grey, const ReteImage 
  * For each line length l = 1, 1 + step, ..., W: R_l = max over 12 orientations of the mean
  * along a line of length l through the pixel, minus the mean of the W x W window,
  * standardised inside the FOV; the combined response is the mean of all R_l and the
- * (standardised) inverted green level (Nguyen 2013, eq. 4-5). */
+ * (standardised) inverted green level (Nguyen 2013, eq. 4-5). A line of length l holds the
+ * l pixels of the digital line through the centre of an l x l square.
+ * Halo: (W - 1) / 2 pixels; borders read as scipy.ndimage's 'reflect'. The map is the
+ * combined response scaled linearly from its minimum (0) to its maximum (1) inside the FOV. */
 typedef struct {
   int window;          /* W, odd, pixels (default 15) */
-  int step;            /* step between line lengths (default 2) */
+  int step;            /* step between line lengths, even (default 2) */
   int n_orientations;  /* default 12 */
 } ReteLineParams;
 
