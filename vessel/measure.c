@@ -5,7 +5,8 @@
  *   exact Euclidean distance transform                        (distance.c, Felzenszwalb &
  *                                                              Huttenlocher 2012)
  *   box-counting dimension of the map                         (fractal.c)
- *   Zhang–Suen thinning, then one pixel thin                  (skeleton.c, Zhang & Suen 1984)
+ *   Zhang–Suen thinning with the Lü–Wang correction, then     (skeleton.c, Zhang & Suen 1984,
+ *   one pixel thin                                             Lü & Wang 1986)
  *   spur pruning, graph of segments between junctions         (graph.c)
  *   calibre, arc/chord, squared curvature per segment         (segment.c, Hart et al. 1999)
  *   box-counting dimension of the skeleton                    (fractal.c)
@@ -208,7 +209,8 @@ rete_measure (const ReteImage *binary, const ReteImage *fov, const ReteMeasurePa
   double fd_map = rete_box_counting_framed (vessels, &r2_map);
 
   memcpy (skeleton->pixels, vessels->pixels, (gsize) (h + 2) * skeleton->stride);
-  if (!rete_thin_zhang_suen (skeleton, params->progress, params->progress_data, 0.25, 0.7, error))
+  if (!rete_thin_zhang_suen (skeleton, RETE_THINNING_LU_WANG, params->progress,
+                             params->progress_data, 0.25, 0.7, error))
     return NULL;
   rete_thin_remove_redundant (skeleton);
   if (!report (params, 0.7, "vessel graph", error))

@@ -44,12 +44,12 @@ extern const int rete_neighbour_dy[8];
 
 /* skeleton.c. Zhang–Suen on a framed map, in place; FALSE (and the error) when cancelled or
  * out of memory. */
-G_GNUC_INTERNAL gboolean rete_thin_zhang_suen (ReteByteMap *map, ReteProgressFunc progress,
+G_GNUC_INTERNAL gboolean rete_thin_zhang_suen (ReteByteMap *map, ReteThinning variant,
+                                               ReteProgressFunc progress,
                                                gpointer progress_data, double from, double to,
                                                GError **error);
-/* Removes skeleton pixels that are simple (removing them changes no connectivity) and not end
- * points, until none is left: the one-pixel-thin skeleton the graph needs. Returns the number
- * removed. */
+/* Removes staircase corners (simple pixels with two perpendicular 4-neighbours) until none is
+ * left: the one-pixel-thin skeleton the graph needs. Returns the number removed. */
 G_GNUC_INTERNAL gsize rete_thin_remove_redundant (ReteByteMap *map);
 
 /* distance.c. Exact Euclidean distance on a framed map (frame pixels are not background),

@@ -5,7 +5,8 @@
  *
  * Methods (each cited again in the .c file that implements it):
  *   skeleton       Zhang & Suen, "A fast parallel algorithm for thinning digital patterns",
- *                  Commun. ACM 27(3):236–239, 1984 (skeleton.c)
+ *                  Commun. ACM 27(3):236–239, 1984, with the correction of Lü & Wang, Commun.
+ *                  ACM 29(3):239–242, 1986 that keeps diagonal strokes (skeleton.c)
  *   distance       exact Euclidean distance transform, Felzenszwalb & Huttenlocher,
  *                  "Distance transforms of sampled functions", Theory of Computing 8:415–428,
  *                  2012 (distance.c)
@@ -150,11 +151,19 @@ RETE_API char *rete_measurements_segments_csv (const ReteMeasurements *measureme
 
 /* ---- The building blocks, for tests and for callers that need one piece ---- */
 
+typedef enum {
+  RETE_THINNING_ZHANG_SUEN, /* as published in 1984 (erases diagonal strokes 2 pixels thick) */
+  RETE_THINNING_LU_WANG,    /* with Lü & Wang's 3 <= B <= 6: what rete_measure uses */
+} ReteThinning;
+
 /* Zhang–Suen thinning in place on a 0/1 byte map (width × height, row-major). Pixels on the
- * outer frame count their outside neighbours as background. Returns FALSE only on cancel. */
-RETE_API gboolean rete_skeleton_thin (guint8 *map, int width, int height,
+ * outer frame count their outside neighbours as background. Returns FALSE on cancel or lack of
+ * memory (the map is then untouched). */
+RETE_API gboolean rete_skeleton_thin (guint8 *map, int width, int height, ReteThinning variant,
                                       ReteProgressFunc progress, gpointer progress_data);
-/* The skeleton of a one-channel map (>= 0.5 is vessel) as a new 0/1 image. */
+/* The skeleton rete_measure uses (Lü–Wang thinning, then staircase corners removed: one pixel
+ * thin, 8-connected) of a one-channel map (>= 0.5 is vessel), before
+ * spur pruning, as a new 0/1 image. */
 RETE_API ReteImage *rete_skeletonize (const ReteImage *binary, GError **error);
 
 /* Exact Euclidean distance of every pixel to the nearest pixel with map[i] == 0 (0 on
