@@ -39,9 +39,11 @@ rete_io_init (void)
                                          drop_duplicate_plugin_warning, NULL);
       GLogLevelFlags fatal = g_log_set_always_fatal (G_LOG_FATAL_MASK);
       gegl_init (NULL, NULL);
+      /* GEGL loads its operation modules on the first look-up: do it here, under the
+       * handler above. */
+      (void) gegl_has_operation ("gegl:png-load");
       g_log_set_always_fatal (fatal);
       g_log_remove_handler ("GLib-GObject", handler);
-      g_object_set (gegl_config (), "application-license", "GPL3", NULL);
       g_once_init_leave (&done, 1);
     }
 }
@@ -60,6 +62,14 @@ loader_for_magic (const guint8 *b, gsize n)
   if (n >= 6 && (memcmp (b, "GIF87a", 6) == 0 || memcmp (b, "GIF89a", 6) == 0))
     return "gegl:gif-load";
   return NULL;
+}
+
+static void
+capture_warning (const char *domain, GLogLevelFlags level, const char *message, gpointer data)
+{
+  char **first = data;
+  if (*first == NULL && message != NULL)
+    *first = g_strdup (message);
 }
 
 static GeglBuffer *
@@ -104,19 +114,36 @@ load_buffer (const char *path, GError **error)
     }
   GeglBuffer *buffer = NULL;
   g_mutex_lock (&io_lock);
+  /* Decoders report a damaged file through warnings only: catch them (and keep them from
+   * being fatal in test binaries) so that the file is refused with the decoder's reason. */
+  char *decoder_warning = NULL;
+  GLogLevelFlags fatal = g_log_set_always_fatal (G_LOG_FATAL_MASK);
+  guint handler_plain = g_log_set_handler (NULL, G_LOG_LEVEL_WARNING | G_LOG_LEVEL_CRITICAL,
+                                           capture_warning, &decoder_warning);
+  guint handler_gegl = g_log_set_handler ("GEGL", G_LOG_LEVEL_WARNING | G_LOG_LEVEL_CRITICAL,
+                                          capture_warning, &decoder_warning);
   GeglNode *graph = gegl_node_new ();
   GeglNode *load = gegl_node_new_child (graph, "operation", op, "path", path, NULL);
   GeglNode *sink = gegl_node_new_child (graph, "operation", "gegl:buffer-sink",
                                         "buffer", &buffer, NULL);
   gegl_node_link (load, sink);
-  gegl_node_process (sink);
+  /* A file the loader cannot decode has an empty bounding box: stop before processing. */
+  GeglRectangle box = gegl_node_get_bounding_box (load);
+  if (box.width > 0 && box.height > 0)
+    gegl_node_process (sink);
   g_object_unref (graph);
+  g_log_remove_handler (NULL, handler_plain);
+  g_log_remove_handler ("GEGL", handler_gegl);
+  g_log_set_always_fatal (fatal);
   g_mutex_unlock (&io_lock);
-  if (buffer == NULL || gegl_buffer_get_width (buffer) <= 0 || gegl_buffer_get_height (buffer) <= 0)
+  if (buffer == NULL || gegl_buffer_get_width (buffer) <= 0 || gegl_buffer_get_height (buffer) <= 0
+      || decoder_warning != NULL)
     {
       g_clear_object (&buffer);
       g_set_error (error, RETE_IO_ERROR, RETE_ERROR_FORMAT,
-                   "%s could not be decoded (truncated or damaged file?)", path);
+                   "%s could not be decoded: the file is truncated or damaged%s%s", path,
+                   decoder_warning != NULL ? " — " : "", decoder_warning != NULL ? decoder_warning : "");
+      g_free (decoder_warning);
       return NULL;
     }
   return buffer;
@@ -269,13 +296,21 @@ rete_io_save (const ReteImage *image, const char *path, const ReteSaveOptions *o
     op = "gegl:jpg-save", bit_depth = 8;
   else if (g_str_has_suffix (lower, ".tif") || g_str_has_suffix (lower, ".tiff"))
     op = "gegl:tiff-save";
+  else if (g_str_has_suffix (lower, ".ppm") && image->channels == 3)
+    op = "gegl:ppm-save";
   else if (g_str_has_suffix (lower, ".ppm") || g_str_has_suffix (lower, ".pgm")
            || g_str_has_suffix (lower, ".pnm"))
-    op = "gegl:ppm-save";
+    {
+      /* GEGL's PPM saver writes colour (P6) only; a grey map written there would come
+       * back as RGB. */
+      g_set_error (error, RETE_IO_ERROR, RETE_ERROR_FORMAT,
+                   "%s: grey maps are not written as PGM/PPM here; use .png or .tif", path);
+      return FALSE;
+    }
   if (op == NULL)
     {
       g_set_error (error, RETE_IO_ERROR, RETE_ERROR_FORMAT,
-                   "%s: Rete writes .png, .tif, .jpg and .ppm/.pgm files; choose one of those extensions",
+                   "%s: Rete writes .png, .tif, .jpg (and .ppm for colour) files; choose one of those extensions",
                    path);
       return FALSE;
     }

@@ -28,7 +28,7 @@ typedef struct {
 } ReteSaveOptions;
 
 /* Writes 1- or 3-channel images (values clamped to [0,1]) by the file name's extension
- * (.png .tif .tiff .jpg .jpeg .ppm .pgm). The file appears atomically: written to a
+ * (.png .tif .tiff .jpg .jpeg; .ppm for RGB only — GEGL writes no PGM). The file appears atomically: written to a
  * temporary file in the same folder, then renamed. options may be NULL (8-bit, quality 95). */
 gboolean rete_io_save (const ReteImage *image, const char *path, const ReteSaveOptions *options,
                        GError **error);
