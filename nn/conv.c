@@ -1,0 +1,289 @@
+/* conv.c — 3×3 ("same", zero padding 1) and 1×1 convolutions, forward and backward.
+ *
+ * The 3×3 convolution is lowered to a matrix product (im2col, Chellapilla, Puri and Simard,
+ * "High performance convolutional neural networks for document processing", 2006): the 9·C_in
+ * shifted copies of the input for a band of output rows form a (9·C_in, rows·W) matrix, and
+ * out_band (C_out, rows·W) = weight (C_out, 9·C_in) × columns + bias, by cblas_sgemm. Bands keep
+ * the column matrix within a few megabytes (cache-sized, and no 9× copy of a whole tile).
+ * Backward: dweight += dout_band × columnsᵀ; dcolumns = weightᵀ × dout_band, folded back into
+ * dinp (col2im). The naive loops stay beside each kernel; tests hold the two together.
+ */
+#include "layers.h"
+
+#include <cblas.h>
+#include <string.h>
+
+/* Output pixels per band: 9·C_in·BAND_PIXELS floats of columns (2.4 MB at C_in = 16). */
+#define BAND_PIXELS 4096
+
+static int
+band_rows (int W, int H)
+{
+  int rows = MAX (1, BAND_PIXELS / MAX (W, 1));
+  return MIN (rows, H);
+}
+
+/* columns (9·C_in, rows·W): row (ci·9 + ky·3 + kx), column (y - y0)·W + x holds
+ * inp[ci, y + ky - 1, x + kx - 1], or 0 outside the image. */
+static void
+im2col3x3 (float *columns, const float *inp /* (C_in, H, W) */, int C_in, int H, int W,
+           int y0, int rows)
+{
+  gsize n_cols = (gsize) rows * W;
+  for (int ci = 0; ci < C_in; ci++)
+    for (int ky = 0; ky < 3; ky++)
+      for (int kx = 0; kx < 3; kx++)
+        {
+          float *col = columns + ((gsize) ci * 9 + ky * 3 + kx) * n_cols;
+          int dx = kx - 1;
+          for (int r = 0; r < rows; r++)
+            {
+              int y = y0 + r + ky - 1;
+              float *dst = col + (gsize) r * W;
+              if (y < 0 || y >= H)
+                {
+                  memset (dst, 0, sizeof (float) * W);
+                  continue;
+                }
+              const float *src = inp + ((gsize) ci * H + y) * W;
+              if (dx == 0)
+                memcpy (dst, src, sizeof (float) * W);
+              else if (dx < 0)
+                {
+                  dst[0] = 0.0f;
+                  memcpy (dst + 1, src, sizeof (float) * (W - 1));
+                }
+              else
+                {
+                  memcpy (dst, src + 1, sizeof (float) * (W - 1));
+                  dst[W - 1] = 0.0f;
+                }
+            }
+        }
+}
+
+/* The adjoint of im2col3x3: dinp += the columns folded back. */
+static void
+col2im3x3 (float *dinp /* (C_in, H, W) */, const float *columns, int C_in, int H, int W,
+           int y0, int rows)
+{
+  gsize n_cols = (gsize) rows * W;
+  for (int ci = 0; ci < C_in; ci++)
+    for (int ky = 0; ky < 3; ky++)
+      for (int kx = 0; kx < 3; kx++)
+        {
+          const float *col = columns + ((gsize) ci * 9 + ky * 3 + kx) * n_cols;
+          int dx = kx - 1;
+          for (int r = 0; r < rows; r++)
+            {
+              int y = y0 + r + ky - 1;
+              if (y < 0 || y >= H)
+                continue;
+              const float *src = col + (gsize) r * W;
+              float *dst = dinp + ((gsize) ci * H + y) * W;
+              int x_first = dx < 0 ? 1 : 0;     /* output x whose input x + dx is inside */
+              int x_last = dx > 0 ? W - 1 : W;
+              for (int x = x_first; x < x_last; x++)
+                dst[x + dx] += src[x];
+            }
+        }
+}
+
+void
+conv3x3_forward (float *out, const float *inp, const float *weight, const float *bias,
+                 int N, int C_in, int C_out, int H, int W)
+{
+  int rows = band_rows (W, H);
+  int K = 9 * C_in;
+  gsize plane = (gsize) H * W;
+  float *columns = g_malloc (sizeof (float) * K * rows * W);
+  for (int n = 0; n < N; n++)
+    {
+      const float *inp_n = inp + (gsize) n * C_in * plane;
+      float *out_n = out + (gsize) n * C_out * plane;
+      for (int co = 0; co < C_out; co++)
+        {
+          float *o = out_n + co * plane;
+          for (gsize i = 0; i < plane; i++)
+            o[i] = bias[co];
+        }
+      for (int y0 = 0; y0 < H; y0 += rows)
+        {
+          int r = MIN (rows, H - y0);
+          im2col3x3 (columns, inp_n, C_in, H, W, y0, r);
+          cblas_sgemm (CblasRowMajor, CblasNoTrans, CblasNoTrans, C_out, r * W, K,
+                       1.0f, weight, K, columns, r * W, 1.0f, out_n + (gsize) y0 * W, plane);
+        }
+    }
+  g_free (columns);
+}
+
+void
+conv3x3_backward (float *dinp, float *dweight, float *dbias, const float *dout,
+                  const float *inp, const float *weight, int N, int C_in, int C_out, int H, int W)
+{
+  int rows = band_rows (W, H);
+  int K = 9 * C_in;
+  gsize plane = (gsize) H * W;
+  float *columns = g_malloc (sizeof (float) * K * rows * W);
+  for (int n = 0; n < N; n++)
+    {
+      const float *inp_n = inp + (gsize) n * C_in * plane;
+      const float *dout_n = dout + (gsize) n * C_out * plane;
+      for (int co = 0; co < C_out; co++)
+        {
+          const float *d = dout_n + co * plane;
+          double sum = 0.0;
+          for (gsize i = 0; i < plane; i++)
+            sum += d[i];
+          dbias[co] += (float) sum;
+        }
+      for (int y0 = 0; y0 < H; y0 += rows)
+        {
+          int r = MIN (rows, H - y0);
+          const float *dout_band = dout_n + (gsize) y0 * W;
+          im2col3x3 (columns, inp_n, C_in, H, W, y0, r);
+          /* dweight (C_out, K) += dout_band (C_out, r·W) × columnsᵀ (r·W, K) */
+          cblas_sgemm (CblasRowMajor, CblasNoTrans, CblasTrans, C_out, K, r * W,
+                       1.0f, dout_band, plane, columns, r * W, 1.0f, dweight, K);
+          if (dinp != NULL)
+            {
+              /* dcolumns (K, r·W) = weightᵀ (K, C_out) × dout_band (C_out, r·W) */
+              cblas_sgemm (CblasRowMajor, CblasTrans, CblasNoTrans, K, r * W, C_out,
+                           1.0f, weight, K, dout_band, plane, 0.0f, columns, r * W);
+              col2im3x3 (dinp + (gsize) n * C_in * plane, columns, C_in, H, W, y0, r);
+            }
+        }
+    }
+  g_free (columns);
+}
+
+void
+conv3x3_forward_naive (float *out, const float *inp, const float *weight, const float *bias,
+                       int N, int C_in, int C_out, int H, int W)
+{
+  for (int n = 0; n < N; n++)
+    for (int co = 0; co < C_out; co++)
+      for (int y = 0; y < H; y++)
+        for (int x = 0; x < W; x++)
+          {
+            double sum = bias[co];
+            for (int ci = 0; ci < C_in; ci++)
+              for (int ky = 0; ky < 3; ky++)
+                for (int kx = 0; kx < 3; kx++)
+                  {
+                    int yy = y + ky - 1, xx = x + kx - 1;
+                    if (yy < 0 || yy >= H || xx < 0 || xx >= W)
+                      continue;
+                    sum += (double) weight[((co * C_in + ci) * 3 + ky) * 3 + kx]
+                           * inp[(((gsize) n * C_in + ci) * H + yy) * W + xx];
+                  }
+            out[(((gsize) n * C_out + co) * H + y) * W + x] = (float) sum;
+          }
+}
+
+void
+conv3x3_backward_naive (float *dinp, float *dweight, float *dbias, const float *dout,
+                        const float *inp, const float *weight,
+                        int N, int C_in, int C_out, int H, int W)
+{
+  for (int n = 0; n < N; n++)
+    for (int co = 0; co < C_out; co++)
+      for (int y = 0; y < H; y++)
+        for (int x = 0; x < W; x++)
+          {
+            float d = dout[(((gsize) n * C_out + co) * H + y) * W + x];
+            dbias[co] += d;
+            for (int ci = 0; ci < C_in; ci++)
+              for (int ky = 0; ky < 3; ky++)
+                for (int kx = 0; kx < 3; kx++)
+                  {
+                    int yy = y + ky - 1, xx = x + kx - 1;
+                    if (yy < 0 || yy >= H || xx < 0 || xx >= W)
+                      continue;
+                    gsize i = (((gsize) n * C_in + ci) * H + yy) * W + xx;
+                    gsize w = ((co * C_in + ci) * 3 + ky) * 3 + kx;
+                    dweight[w] += d * inp[i];
+                    if (dinp != NULL)
+                      dinp[i] += d * weight[w];
+                  }
+          }
+}
+
+/* 1×1: out_n (C_out, H·W) = weight (C_out, C_in) × inp_n (C_in, H·W) + bias. */
+void
+conv1x1_forward (float *out, const float *inp, const float *weight, const float *bias,
+                 int N, int C_in, int C_out, int H, int W)
+{
+  gsize plane = (gsize) H * W;
+  for (int n = 0; n < N; n++)
+    {
+      float *out_n = out + (gsize) n * C_out * plane;
+      for (int co = 0; co < C_out; co++)
+        for (gsize i = 0; i < plane; i++)
+          out_n[co * plane + i] = bias[co];
+      cblas_sgemm (CblasRowMajor, CblasNoTrans, CblasNoTrans, C_out, plane, C_in, 1.0f, weight,
+                   C_in, inp + (gsize) n * C_in * plane, plane, 1.0f, out_n, plane);
+    }
+}
+
+void
+conv1x1_backward (float *dinp, float *dweight, float *dbias, const float *dout,
+                  const float *inp, const float *weight, int N, int C_in, int C_out, int H, int W)
+{
+  gsize plane = (gsize) H * W;
+  for (int n = 0; n < N; n++)
+    {
+      const float *dout_n = dout + (gsize) n * C_out * plane;
+      for (int co = 0; co < C_out; co++)
+        {
+          double sum = 0.0;
+          for (gsize i = 0; i < plane; i++)
+            sum += dout_n[co * plane + i];
+          dbias[co] += (float) sum;
+        }
+      cblas_sgemm (CblasRowMajor, CblasNoTrans, CblasTrans, C_out, C_in, plane, 1.0f, dout_n,
+                   plane, inp + (gsize) n * C_in * plane, plane, 1.0f, dweight, C_in);
+      if (dinp != NULL)
+        cblas_sgemm (CblasRowMajor, CblasTrans, CblasNoTrans, C_in, plane, C_out, 1.0f, weight,
+                     C_in, dout_n, plane, 1.0f, dinp + (gsize) n * C_in * plane, plane);
+    }
+}
+
+void
+conv1x1_forward_naive (float *out, const float *inp, const float *weight, const float *bias,
+                       int N, int C_in, int C_out, int H, int W)
+{
+  gsize plane = (gsize) H * W;
+  for (int n = 0; n < N; n++)
+    for (int co = 0; co < C_out; co++)
+      for (gsize i = 0; i < plane; i++)
+        {
+          double sum = bias[co];
+          for (int ci = 0; ci < C_in; ci++)
+            sum += (double) weight[co * C_in + ci] * inp[((gsize) n * C_in + ci) * plane + i];
+          out[((gsize) n * C_out + co) * plane + i] = (float) sum;
+        }
+}
+
+void
+conv1x1_backward_naive (float *dinp, float *dweight, float *dbias, const float *dout,
+                        const float *inp, const float *weight,
+                        int N, int C_in, int C_out, int H, int W)
+{
+  gsize plane = (gsize) H * W;
+  for (int n = 0; n < N; n++)
+    for (int co = 0; co < C_out; co++)
+      for (gsize i = 0; i < plane; i++)
+        {
+          float d = dout[((gsize) n * C_out + co) * plane + i];
+          dbias[co] += d;
+          for (int ci = 0; ci < C_in; ci++)
+            {
+              gsize j = ((gsize) n * C_in + ci) * plane + i;
+              dweight[co * C_in + ci] += d * inp[j];
+              if (dinp != NULL)
+                dinp[j] += d * weight[co * C_in + ci];
+            }
+        }
+}
