@@ -72,6 +72,59 @@ capture_warning (const char *domain, GLogLevelFlags level, const char *message, 
     *first = g_strdup (message);
 }
 
+/* GEGL's JPEG loader leaves libjpeg's default error handler in place, which ends the whole
+ * process on a fatal decoding error. So a JPEG is walked marker by marker first (ITU T.81,
+ * annex B) and refused unless it reaches its end-of-image marker: this catches the common
+ * damage, a file cut short. */
+static gboolean
+jpeg_is_complete (const char *path, GError **error)
+{
+  gchar *data = NULL;
+  gsize n = 0;
+  if (!g_file_get_contents (path, &data, &n, NULL))
+    return TRUE; /* the loader reports unreadable files itself */
+  const guint8 *b = (const guint8 *) data;
+  gsize i = 2;
+  gboolean complete = FALSE;
+  while (i + 1 < n)
+    {
+      if (b[i] != 0xFF)
+        break;
+      guint8 marker = b[i + 1];
+      if (marker == 0xD9)
+        {
+          complete = TRUE;
+          break;
+        }
+      if (marker == 0xFF)
+        {
+          i++;
+          continue;
+        }
+      if (marker == 0x01 || (marker >= 0xD0 && marker <= 0xD7))
+        {
+          i += 2;
+          continue;
+        }
+      if (i + 3 >= n)
+        break;
+      gsize length = ((gsize) b[i + 2] << 8) | b[i + 3];
+      i += 2 + length;
+      if (marker == 0xDA) /* start of scan: entropy-coded data up to the next real marker */
+        {
+          while (i + 1 < n && !(b[i] == 0xFF && b[i + 1] != 0x00
+                                && !(b[i + 1] >= 0xD0 && b[i + 1] <= 0xD7)))
+            i++;
+        }
+    }
+  g_free (data);
+  if (!complete)
+    g_set_error (error, RETE_IO_ERROR, RETE_ERROR_FORMAT,
+                 "%s is a damaged or truncated JPEG file (it does not reach its end-of-image "
+                 "marker); copy it again from its source", path);
+  return complete;
+}
+
 static GeglBuffer *
 load_buffer (const char *path, GError **error)
 {
@@ -104,6 +157,8 @@ load_buffer (const char *path, GError **error)
                    path, n == 0 ? ": the file is empty" : "");
       return NULL;
     }
+  if (strcmp (op, "gegl:jpg-load") == 0 && !jpeg_is_complete (path, error))
+    return NULL;
   rete_io_init ();
   if (!gegl_has_operation (op))
     {
