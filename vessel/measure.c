@@ -34,7 +34,8 @@ rete_measure_params_init (ReteMeasureParams *params)
 static gboolean
 check_params (const ReteMeasureParams *pa, int w, int h, double *pixel_size, GError **error)
 {
-  double diagonal = hypot (w, h);
+  gboolean sized = w > 0 && h > 0;
+  double diagonal = sized ? hypot (w, h) : INFINITY;
   *pixel_size = 1;
   switch (pa->calibration)
     {
@@ -52,8 +53,14 @@ check_params (const ReteMeasureParams *pa, int w, int h, double *pixel_size, GEr
       *pixel_size = pa->pixel_size_mm;
       break;
     case RETE_CALIBRATION_FOV_DIAMETER:
-      if (!isfinite (pa->fov_diameter_px) || pa->fov_diameter_px <= 0
-          || pa->fov_diameter_px > 2 * diagonal)
+      if (!isfinite (pa->fov_diameter_px) || pa->fov_diameter_px <= 0)
+        {
+          g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
+                       "the FOV diameter must be a positive number of pixels, not %g",
+                       pa->fov_diameter_px);
+          return FALSE;
+        }
+      if (pa->fov_diameter_px > 2 * diagonal)
         {
           g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
                        "the FOV diameter must be a positive number of pixels at most twice the "
@@ -89,11 +96,11 @@ check_params (const ReteMeasureParams *pa, int w, int h, double *pixel_size, GEr
       return FALSE;
     }
   if (!isfinite (pa->min_segment_length) || pa->min_segment_length < 0
-      || pa->min_segment_length > MAX (w, h))
+      || pa->min_segment_length > RETE_MAX_SIDE)
     {
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
-                   "the shortest segment kept must be between 0 and %d pixels (the map's "
-                   "longer side), not %g", MAX (w, h), pa->min_segment_length);
+                   "the shortest segment kept must be between 0 and %d pixels, not %g",
+                   RETE_MAX_SIDE, pa->min_segment_length);
       return FALSE;
     }
   if (!isfinite (pa->curvature_sigma) || pa->curvature_sigma < 0.5
@@ -104,6 +111,19 @@ check_params (const ReteMeasureParams *pa, int w, int h, double *pixel_size, GEr
                    pa->curvature_sigma);
       return FALSE;
     }
+  return TRUE;
+}
+
+gboolean
+rete_measure_params_check (const ReteMeasureParams *params, int width, int height,
+                           double *pixel_size_mm, GError **error)
+{
+  g_return_val_if_fail (params != NULL, FALSE);
+  double ps;
+  if (!check_params (params, width, height, &ps, error))
+    return FALSE;
+  if (pixel_size_mm != NULL)
+    *pixel_size_mm = params->calibration == RETE_CALIBRATION_NONE ? 0 : ps;
   return TRUE;
 }
 

@@ -64,6 +64,12 @@ typedef struct {
 } ReteMeasureParams;
 
 RETE_API void rete_measure_params_init (ReteMeasureParams *params);
+/* Checks the params as rete_measure does (calibration values zero, negative, not finite or
+ * absurd; segment length; smoothing), for a map of width × height (<= 0: size unknown, the
+ * size-dependent bounds are not checked), so that a dialog or a command can refuse them before
+ * any map is read. *pixel_size_mm (may be NULL) gets mm per pixel, or 0 when uncalibrated. */
+RETE_API gboolean rete_measure_params_check (const ReteMeasureParams *params, int width,
+                                             int height, double *pixel_size_mm, GError **error);
 
 /* Values of the point_type image. */
 typedef enum {
