@@ -63,7 +63,6 @@ count_levels (int first, int last, gpointer data)
                 }
               int vessel = rete_count_label (in, i, &q->stats);
               q->count[2 * k + vessel]++;
-              q->stats.confusion[vessel][s >= in->threshold]++;
             }
         }
     }
@@ -123,13 +122,8 @@ count_quantised (const ReteCountInput *in, ReteCountResult *result, gboolean *do
   rete_scan_stats_init (&stats);
   for (int s = 0; s < n_slices; s++)
     rete_scan_stats_add (&stats, &job.slices[s].stats);
-  if (!rete_scan_stats_check (in, &stats, error))
-    {
-      *done = TRUE;
-      ok = FALSE;
-      goto out;
-    }
   int n_levels = 0;
+  guint64 n_inside = 0;
   for (int k = N_LEVELS - 1; k >= 0; k--)
     {
       float score = -1.0f;
@@ -147,22 +141,34 @@ count_quantised (const ReteCountInput *in, ReteCountResult *result, gboolean *do
         }
       if (pos + neg == 0)
         continue;
+      n_inside += pos + neg;
       level_score[n_levels] = score;
       level_count[2 * n_levels] = neg;
       level_count[2 * n_levels + 1] = pos;
       n_levels++;
     }
 
-  ReteCountResult r = { 0 };
-  r.n_positive = stats.confusion[1][0] + stats.confusion[1][1];
-  r.n_negative = stats.confusion[0][0] + stats.confusion[0][1];
-  r.n_reference_not_binary = stats.not_binary;
-  r.confusion.true_positive = stats.confusion[1][1];
-  r.confusion.false_negative = stats.confusion[1][0];
-  r.confusion.false_positive = stats.confusion[0][1];
-  r.confusion.true_negative = stats.confusion[0][0];
-  r.quantised = TRUE;
+  stats.confusion[0][0] = n_inside; /* for the check of an empty mask */
+  if (!rete_scan_stats_check (in, &stats, error))
+    {
+      *done = TRUE;
+      ok = FALSE;
+      goto out;
+    }
 
+  ReteCountResult r = { 0 };
+  r.n_reference_not_binary = stats.not_binary;
+  r.quantised = TRUE;
+  for (int g = 0; g < n_levels; g++)
+    {
+      /* the confusion table: levels at or above the threshold are marked vessel */
+      gboolean marked = level_score[g] >= in->threshold;
+      guint64 neg = level_count[2 * g], pos = level_count[2 * g + 1];
+      r.n_negative += neg;
+      r.n_positive += pos;
+      (marked ? &r.confusion.true_positive : &r.confusion.false_negative)[0] += pos;
+      (marked ? &r.confusion.false_positive : &r.confusion.true_negative)[0] += neg;
+    }
   ReteSweep sweep;
   rete_sweep_init (&sweep, r.n_positive, r.n_negative);
   guint64 tp = 0, fp = 0;
@@ -177,25 +183,30 @@ count_quantised (const ReteCountInput *in, ReteCountResult *result, gboolean *do
 
   if (in->max_roc_points >= 2)
     {
-      guint64 *points = g_new (guint64, MIN ((guint64) in->max_roc_points, (guint64) n_levels + 1));
-      int n_points = rete_roc_plan (n_levels, in->max_roc_points, points);
-      if (!rete_roc_alloc (&r, n_points, r.max_score, error))
-        {
-          g_free (points);
-          *done = TRUE;
-          ok = FALSE;
-          goto out;
-        }
+      int M = in->max_roc_points;
+      guint64 j = 1;
+      RetePoint *points = g_new (RetePoint, MAX (n_levels, 1));
+      gsize n_points = 0;
       tp = fp = 0;
-      int next = 1;
-      for (int g = 0; g < n_levels && next < n_points; g++)
+      for (int g = 0; g < n_levels; g++)
         {
           tp += level_count[2 * g + 1];
           fp += level_count[2 * g];
-          if (points[next] == (guint64) g + 1)
-            rete_roc_set (&r, next++, level_score[g], tp, fp);
+          /* every level, or the thinned choice (agreement_count.h) */
+          if (n_levels + 1 <= M || (j < (guint64) M && tp + fp >= rete_roc_target (n_inside, M, j)))
+            {
+              points[n_points++] = (RetePoint) { level_score[g], tp, fp };
+              while (j < (guint64) M && rete_roc_target (n_inside, M, j) <= tp + fp)
+                j++;
+            }
         }
+      ok = rete_roc_store (&r, points, n_points, r.max_score, error);
       g_free (points);
+      if (!ok)
+        {
+          *done = TRUE;
+          goto out;
+        }
     }
   *result = r;
   *done = TRUE;
@@ -248,7 +259,10 @@ rete_count_scores (const ReteCountInput *in, ReteCountResult *result, GError **e
       gboolean ok = count_quantised (in, result, &done, error);
       if (done)
         return ok;
+      g_debug ("agreement: scores are not all on the 16-bit levels; sorting them instead");
     }
+  else
+    g_debug ("agreement: scores do not look quantised; sorting them");
   return rete_count_radix (in, result, error);
 }
 

@@ -145,8 +145,7 @@ rete_sweep_group (ReteSweep *s, float score, guint64 pos, guint64 neg, guint64 t
    * against the positives tied with it (Hanley & McNeil, Radiology 143, 1982). */
   s->auc_twice_numerator += neg * (2 * tp_above + pos);
   /* average precision = sum over thresholds of (R_k - R_{k-1}) P_k (sklearn's definition) */
-  if (pos > 0)
-    s->ap_sum += (double) pos * ((double) tp / (double) (tp + fp));
+  s->ap_sum += (double) pos * ((double) tp / (double) (tp + fp)); /* 0 when pos = 0 */
   if (!s->has_first)
     {
       s->has_first = TRUE;
@@ -182,20 +181,27 @@ G_GNUC_INTERNAL void rete_sweep_merge (ReteSweep *upper, const ReteSweep *lower)
 /* Copies the sweep's figures into the result. */
 G_GNUC_INTERNAL void rete_sweep_finish (const ReteSweep *sweep, ReteCountResult *result);
 
-/* The ROC points to keep: point 0 is (0, 0); point p >= 1 is the one after distinct
- * group p - 1 (descending). Fills `points` (n_points sorted indices) evenly over
- * 0..n_distinct; returns n_points = MIN (max_points, n_distinct + 1). */
-G_GNUC_INTERNAL int rete_roc_plan (guint64 n_distinct, int max_points, guint64 *points);
-/* Allocates the result's curve arrays (n_points) and fills point 0. */
-G_GNUC_INTERNAL gboolean rete_roc_alloc (ReteCountResult *result, int n_points, double max_score,
-                                         GError **error);
-static inline void
-rete_roc_set (ReteCountResult *r, int k, float score, guint64 tp, guint64 fp)
+/* ROC points. With no more distinct scores than max_points - 1, every one gives a point.
+ * Otherwise the curve is thinned evenly in the number of samples marked: point j
+ * (1 <= j < max_points) goes to the first distinct score, from the highest down, at which at
+ * least rete_roc_target (j) samples are marked vessel; a score that meets several targets
+ * gives one point, so there may be fewer points than max_points. The last, (1, 1), is
+ * always kept. */
+typedef struct {
+  float score;
+  guint64 tp, fp; /* marked vessel at score >= this one */
+} RetePoint;
+
+static inline guint64
+rete_roc_target (guint64 n_inside, int max_points, guint64 j)
 {
-  r->roc_false_positive_rate[k] = (double) fp / (double) r->n_negative;
-  r->roc_true_positive_rate[k] = (double) tp / (double) r->n_positive;
-  r->roc_threshold[k] = score;
+  return (j * n_inside + (guint64) (max_points - 2)) / (guint64) (max_points - 1); /* ceil */
 }
+
+/* Fills the result's curve: (0, 0) at threshold max_score + 1 (as sklearn 1.2's roc_curve
+ * does), then the n points given, highest score first. */
+G_GNUC_INTERNAL gboolean rete_roc_store (ReteCountResult *result, const RetePoint *points,
+                                         gsize n_points, double max_score, GError **error);
 
 /* The general path for arbitrary floats: a most-significant-digit radix pass on the top
  * 16 bits of the score keys, then in-cache sorts of the low 16 bits (agreement_radix.c). */

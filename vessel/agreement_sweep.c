@@ -31,12 +31,14 @@ static void
 set_bad_value_error (const ReteCountInput *in, const char *name, float value, gsize i,
                      GError **error)
 {
+  const char *fix = strcmp (name, "reference") == 0 ? "check the reference file"
+                                                     : "recompute the map";
   const char *what = isnan (value) ? "NaN (not a number)" : value > 0 ? "+infinity" : "-infinity";
   if (in->width > 0)
     g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NOT_FINITE,
                  "%s holds %s at pixel (%d, %d); every value inside the field of view must "
-                 "be a finite number (recompute the map, or leave that pixel out of the mask)",
-                 name, what, (int) (i % (gsize) in->width), (int) (i / (gsize) in->width));
+                 "be a finite number (%s, or leave that pixel out of the mask)",
+                 name, what, (int) (i % (gsize) in->width), (int) (i / (gsize) in->width), fix);
   else
     g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NOT_FINITE,
                  "%s holds %s at index %" G_GSIZE_FORMAT "; every value must be a finite "
@@ -138,28 +140,14 @@ rete_sweep_finish (const ReteSweep *sweep, ReteCountResult *result)
   confusion_at (&result->best_youden, sweep->youden_tp, sweep->youden_fp, sweep->P, sweep->N);
 }
 
-int
-rete_roc_plan (guint64 n_distinct, int max_points, guint64 *points)
-{
-  guint64 total = n_distinct + 1;
-  if (total <= (guint64) max_points)
-    {
-      for (guint64 p = 0; p < total; p++)
-        points[p] = p;
-      return (int) total;
-    }
-  /* evenly spaced, first and last kept; strictly increasing since total > max_points */
-  for (int j = 0; j < max_points; j++)
-    points[j] = ((guint64) j * n_distinct + (guint64) (max_points - 1) / 2) / (guint64) (max_points - 1);
-  return max_points;
-}
-
 gboolean
-rete_roc_alloc (ReteCountResult *result, int n_points, double max_score, GError **error)
+rete_roc_store (ReteCountResult *result, const RetePoint *points, gsize n_points,
+                double max_score, GError **error)
 {
-  result->roc_false_positive_rate = g_try_new (double, n_points);
-  result->roc_true_positive_rate = g_try_new (double, n_points);
-  result->roc_threshold = g_try_new (double, n_points);
+  gsize n = n_points + 1;
+  result->roc_false_positive_rate = g_try_new (double, n);
+  result->roc_true_positive_rate = g_try_new (double, n);
+  result->roc_threshold = g_try_new (double, n);
   if (result->roc_false_positive_rate == NULL || result->roc_true_positive_rate == NULL
       || result->roc_threshold == NULL)
     {
@@ -167,14 +155,20 @@ rete_roc_alloc (ReteCountResult *result, int n_points, double max_score, GError 
       g_clear_pointer (&result->roc_true_positive_rate, g_free);
       g_clear_pointer (&result->roc_threshold, g_free);
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
-                   "not enough memory for an ROC curve of %d points", n_points);
+                   "not enough memory for an ROC curve of %" G_GSIZE_FORMAT " points", n);
       return FALSE;
     }
-  result->n_roc_points = n_points;
-  /* point 0: nothing is vessel; its threshold lies above every score (as sklearn 1.2's
-   * roc_curve puts it: the highest score + 1) */
-  result->roc_false_positive_rate[0] = 0.0 / (double) result->n_negative;
-  result->roc_true_positive_rate[0] = 0.0 / (double) result->n_positive;
+  result->n_roc_points = (int) n;
+  /* nothing is vessel above every score; a rate whose class is absent is 0/0 = NaN */
+  double P = (double) result->n_positive, N = (double) result->n_negative;
+  result->roc_false_positive_rate[0] = 0.0 / N;
+  result->roc_true_positive_rate[0] = 0.0 / P;
   result->roc_threshold[0] = max_score + 1.0;
+  for (gsize k = 0; k < n_points; k++)
+    {
+      result->roc_false_positive_rate[k + 1] = (double) points[k].fp / N;
+      result->roc_true_positive_rate[k + 1] = (double) points[k].tp / P;
+      result->roc_threshold[k + 1] = points[k].score;
+    }
   return TRUE;
 }
