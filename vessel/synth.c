@@ -262,7 +262,9 @@ compose_rows (int first, int last, gpointer user_data)
                   v = v * (1.0 - wdisc) + disc[ch] * wdisc;
                   v = v * (1.0 - wcup) + cup[ch] * wcup;
                   v = v * (1.0 - wl) + lesion[ch] * wl;
-                  v *= 1.0 - a * depth[ch];
+                  /* On the pale disc vessels keep their dark red (stronger absorption
+                   * relative to the bright background). */
+                  v *= 1.0 - a * MIN (0.95, depth[ch] * (1.0 + 0.5 * wdisc));
                   c[ch] = v * illumination * rim;
                 }
             }

@@ -213,6 +213,10 @@ synth_grow_trees (const ReteSynthParams *params, const SynthLayout *layout, GArr
           root.to_branch = branch_interval (&rng, root.width, params->max_vessel_width, s);
         }
       root.width = MAX (root.width, params->min_vessel_width);
+      /* Start a little behind the disc centre, so that the trunks meet in the cup instead of
+       * leaving a gap between their rounded ends. */
+      root.x -= 0.3 * layout->disc_radius * cos (root.heading);
+      root.y -= 0.3 * layout->disc_radius * sin (root.heading);
       g_array_append_val (stack, root);
       while (stack->len > 0)
         {
