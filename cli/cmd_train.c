@@ -1,0 +1,642 @@
+/* cmd_train.c — `rete train`: trains a U-Net model (nn/rete_train.h) on folders of
+ * photographs and their manual vessel annotations (optional field-of-view masks), matched
+ * by file name, with a fixed validation list; writes the model file with its preprocessing,
+ * provenance and validation figures in the metadata, a CSV log and a resumable checkpoint.
+ * Also the loading shared with `rete sweep` (cmd_train.h). */
+#include "cmd_train.h"
+
+#include <math.h>
+#include <signal.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "rete_agreement.h"
+#include "rete_fov.h"
+#include "rete_preprocess.h"
+#if __has_include("rete_learned.h")
+#include "rete_learned.h"
+#else
+/* Until vessel/rete_learned.h is in: the preprocessing the model metadata declares (channel,
+ * CLAHE inside the FOV, standardisation inside the FOV), built from rete_preprocess.h. */
+static ReteImage *
+rete_learned_prepare_input (const ReteImage *photo, const ReteImage *fov, const ReteModel *model,
+                            GError **error)
+{
+  ReteChannel channel = RETE_CHANNEL_GREEN;
+  const char *name = rete_model_get_meta (model, "channel");
+  if (name != NULL && !rete_channel_from_name (name, &channel, error))
+    return NULL;
+  ReteClaheParams clahe;
+  rete_clahe_params_init (&clahe);
+  gboolean use_clahe = g_strcmp0 (rete_model_get_meta (model, "clahe"), "false") != 0;
+  ReteImage *grey = rete_preprocess (photo, fov, channel, use_clahe ? &clahe : NULL, error);
+  if (grey != NULL && g_strcmp0 (rete_model_get_meta (model, "normalisation"), "none") != 0
+      && !rete_standardise (grey, fov, error))
+    g_clear_pointer (&grey, rete_image_free);
+  return grey;
+}
+#endif
+
+/* ---- data ---------------------------------------------------------------------------------- */
+
+static const char *const annotation_suffixes[] = { "_1stHO", "_manual1", "-vessels", "_vessels",
+                                                   NULL };
+static const char *const mask_suffixes[] = { "_mask", "-mask", "-fov", "_fov", NULL };
+/* Rete's own outputs and the second observer's annotations are never photographs. */
+static const char *const skip_suffixes[] = { "-fov", "-vessels", "-vessel-probability", "-roc",
+                                             "_1stHO", "_2ndHO", "_mask", NULL };
+
+void
+rete_train_pair_free (ReteTrainPair *pair)
+{
+  if (pair == NULL)
+    return;
+  g_free (pair->name);
+  rete_image_free (pair->input);
+  rete_image_free (pair->target);
+  rete_image_free (pair->fov);
+  g_free (pair);
+}
+
+ReteModel *
+rete_train_preprocessing_model (const ReteTrainDataOptions *options, GError **error)
+{
+  ReteChannel channel = RETE_CHANNEL_GREEN;
+  if (options->channel != NULL && !rete_channel_from_name (options->channel, &channel, error))
+    return NULL;
+  ReteUnetConfig arch;
+  rete_unet_config_init (&arch);
+  arch.levels = 1;
+  arch.base_filters = 1;
+  arch.convs_per_block = 1;
+  ReteUnet *net = rete_unet_new (&arch, 1, error);
+  if (net == NULL)
+    return NULL;
+  ReteModel *model = rete_model_new (net);
+  ReteClaheParams clahe;
+  rete_clahe_params_init (&clahe);
+  char buf[G_ASCII_DTOSTR_BUF_SIZE];
+  rete_model_set_meta (model, "channel", rete_channel_name (channel));
+  rete_model_set_meta (model, "clahe", options->no_clahe ? "false" : "true");
+  g_snprintf (buf, sizeof buf, "%d", clahe.kernel_width);
+  rete_model_set_meta (model, "clahe_kernel", buf);
+  rete_model_set_meta (model, "clahe_clip_limit", g_ascii_dtostr (buf, sizeof buf, clahe.clip_limit));
+  g_snprintf (buf, sizeof buf, "%d", clahe.n_bins);
+  rete_model_set_meta (model, "clahe_bins", buf);
+  rete_model_set_meta (model, "normalisation", "standardise");
+  return model;
+}
+
+char **
+rete_train_preprocessing_metadata (const ReteModel *model)
+{
+  static const char *const keys[] = { "channel", "clahe", "clahe_kernel", "clahe_clip_limit",
+                                      "clahe_bins", "normalisation" };
+  GPtrArray *out = g_ptr_array_new ();
+  for (gsize i = 0; i < G_N_ELEMENTS (keys); i++)
+    {
+      const char *value = rete_model_get_meta (model, keys[i]);
+      if (value != NULL)
+        {
+          g_ptr_array_add (out, g_strdup (keys[i]));
+          g_ptr_array_add (out, g_strdup (value));
+        }
+    }
+  g_ptr_array_add (out, NULL);
+  return (char **) g_ptr_array_free (out, FALSE);
+}
+
+static ReteImage *
+load_binary (const char *path, const char *what, const ReteImage *photo, const char *photo_path,
+             GError **error)
+{
+  ReteImage *image = rete_cli_load_grey (path, what, error);
+  if (image == NULL)
+    return NULL;
+  if (image->width != photo->width || image->height != photo->height)
+    {
+      g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_INPUT,
+                   "%s %s is %d×%d but photograph %s is %d×%d; give the %s made for this "
+                   "photograph", what, path, image->width, image->height, photo_path,
+                   photo->width, photo->height, what);
+      rete_image_free (image);
+      return NULL;
+    }
+  gsize grey = rete_image_binarise (image, 0.5f);
+  if (grey > 0)
+    fprintf (stderr, "rete train: warning: %s %s is not binary (%" G_GSIZE_FORMAT " pixels "
+             "neither black nor white); thresholded at half\n", what, path, grey);
+  return image;
+}
+
+static ReteTrainPair *
+load_pair (const ReteCliInput *input, const ReteTrainDataOptions *options,
+           const ReteModel *model, GError **error)
+{
+  g_autoptr (ReteImage) photo = rete_io_load (input->path, error);
+  if (photo == NULL)
+    return NULL;
+  g_autofree char *annotation_path = rete_cli_find_companion (options->annotations, input->stem,
+                                                              annotation_suffixes, "annotation",
+                                                              error);
+  if (annotation_path == NULL)
+    return NULL;
+  g_autoptr (ReteImage) target = load_binary (annotation_path, "annotation", photo, input->path,
+                                              error);
+  if (target == NULL)
+    return NULL;
+  g_autoptr (ReteImage) fov = NULL;
+  if (options->masks != NULL)
+    {
+      g_autofree char *mask_path = rete_cli_find_companion (options->masks, input->stem,
+                                                            mask_suffixes, "FOV mask", error);
+      if (mask_path == NULL)
+        return NULL;
+      fov = load_binary (mask_path, "FOV mask", photo, input->path, error);
+    }
+  else
+    {
+      ReteFovParams fp;
+      rete_fov_params_init (&fp);
+      fov = rete_fov_detect (photo, &fp, error);
+    }
+  if (fov == NULL)
+    return NULL;
+  ReteImage *prepared = rete_learned_prepare_input (photo, fov, model, error);
+  if (prepared == NULL)
+    return NULL;
+  ReteTrainPair *pair = g_new0 (ReteTrainPair, 1);
+  pair->name = g_strdup (input->stem);
+  pair->input = prepared;
+  pair->target = g_steal_pointer (&target);
+  pair->fov = g_steal_pointer (&fov);
+  return pair;
+}
+
+GPtrArray *
+rete_train_pairs_load (char **arguments, const ReteTrainDataOptions *options,
+                       const ReteModel *model, GError **error)
+{
+  if (options->annotations == NULL)
+    {
+      g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_USAGE,
+                   "--annotations FOLDER is needed: the manual vessel maps to learn from");
+      return NULL;
+    }
+  GPtrArray *inputs = rete_cli_expand_inputs (arguments, FALSE, skip_suffixes, error);
+  if (inputs == NULL)
+    return NULL;
+  if (inputs->len == 0)
+    {
+      g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_INPUT,
+                   "no photographs given: the training set is empty");
+      g_ptr_array_unref (inputs);
+      return NULL;
+    }
+  GPtrArray *pairs = g_ptr_array_new_with_free_func ((GDestroyNotify) rete_train_pair_free);
+  for (guint i = 0; i < inputs->len; i++)
+    {
+      const ReteCliInput *input = inputs->pdata[i];
+      ReteTrainPair *pair = load_pair (input, options, model, error);
+      if (pair == NULL)
+        {
+          g_prefix_error (error, "%s: ", input->path);
+          g_ptr_array_unref (pairs);
+          pairs = NULL;
+          break;
+        }
+      g_ptr_array_add (pairs, pair);
+    }
+  g_ptr_array_unref (inputs);
+  return pairs;
+}
+
+static ReteTrainSample
+sample_of (const ReteTrainPair *p)
+{
+  return (ReteTrainSample) { p->name, p->input->channels, p->input->height, p->input->width,
+                             p->input->data, p->target->data, p->fov->data };
+}
+
+gboolean
+rete_train_pairs_split (GPtrArray *pairs, const char *validation_names, GArray **training,
+                        GArray **validation, GError **error)
+{
+  g_auto (GStrv) names = validation_names ? g_strsplit (validation_names, ",", -1) : NULL;
+  *training = g_array_new (FALSE, FALSE, sizeof (ReteTrainSample));
+  *validation = g_array_new (FALSE, FALSE, sizeof (ReteTrainSample));
+  for (int k = 0; names != NULL && names[k] != NULL; k++)
+    {
+      g_strstrip (names[k]);
+      gboolean found = FALSE;
+      for (guint i = 0; i < pairs->len && !found; i++)
+        found = g_strcmp0 (((ReteTrainPair *) pairs->pdata[i])->name, names[k]) == 0;
+      if (!found && names[k][0] != '\0')
+        {
+          g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_USAGE, "validation photograph "
+                       "'%s' is not among the photographs given (use their names without "
+                       "extension, e.g. Image_09L)", names[k]);
+          g_array_unref (*training);
+          g_array_unref (*validation);
+          *training = *validation = NULL;
+          return FALSE;
+        }
+    }
+  for (guint i = 0; i < pairs->len; i++)
+    {
+      const ReteTrainPair *p = pairs->pdata[i];
+      ReteTrainSample s = sample_of (p);
+      gboolean held_out = names != NULL && g_strv_contains ((const char *const *) names, p->name);
+      g_array_append_val (held_out ? *validation : *training, s);
+    }
+  if ((*training)->len == 0)
+    {
+      g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_INPUT, "every photograph is in the "
+                   "validation list: the training set is empty");
+      g_array_unref (*training);
+      g_array_unref (*validation);
+      *training = *validation = NULL;
+      return FALSE;
+    }
+  return TRUE;
+}
+
+gboolean
+rete_train_figures (const ReteModel *model, GArray *validation, ReteTrainFigures *f,
+                    GError **error)
+{
+  /* pooled over the validation photographs: one image of all their FOV pixels side by side */
+  memset (f, 0, sizeof *f);
+  gsize total = 0;
+  for (guint i = 0; i < validation->len; i++)
+    {
+      const ReteTrainSample *s = &g_array_index (validation, ReteTrainSample, i);
+      total += (gsize) s->width * s->height;
+    }
+  if (total == 0 || total > RETE_MAX_PIXELS)
+    {
+      g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_INPUT, "no validation photographs");
+      return FALSE;
+    }
+  /* rows of 1024 pixels; the tail of the last row lies outside the mask */
+  int rows = (int) ((total + 1023) / 1024);
+  g_autoptr (ReteImage) scores = rete_image_new (1024, rows, 1, error);
+  g_autoptr (ReteImage) reference = scores ? rete_image_new (1024, rows, 1, error) : NULL;
+  g_autoptr (ReteImage) mask = reference ? rete_image_new (1024, rows, 1, error) : NULL;
+  if (mask == NULL)
+    return FALSE;
+  gsize at = 0;
+  gint64 start = g_get_monotonic_time ();
+  for (guint i = 0; i < validation->len; i++)
+    {
+      const ReteTrainSample *s = &g_array_index (validation, ReteTrainSample, i);
+      gsize n = (gsize) s->width * s->height;
+      if (!rete_model_infer (model, s->input, s->channels, s->height, s->width,
+                             scores->data + at, NULL, NULL, error))
+        return FALSE;
+      memcpy (reference->data + at, s->target, n * sizeof (float));
+      memcpy (mask->data + at, s->mask, n * sizeof (float));
+      at += n;
+    }
+  f->seconds_per_image = (g_get_monotonic_time () - start) / 1e6 / validation->len;
+  g_autoptr (ReteAgreement) a = rete_agreement_compute (scores, reference, mask, 0.5, 2, error);
+  if (a == NULL)
+    return FALSE;
+  f->auc = a->auc;
+  f->accuracy = a->rates.accuracy;
+  f->sensitivity = a->rates.sensitivity;
+  f->specificity = a->rates.specificity;
+  return TRUE;
+}
+
+gboolean
+rete_train_size_preset (const char *name, ReteUnetConfig *config, GError **error)
+{
+  rete_unet_config_init (config);
+  if (name == NULL || g_ascii_strcasecmp (name, "standard") == 0)
+    return TRUE; /* 3 levels, 16 base filters, 2 convolutions per block: about 1e5 weights */
+  if (g_ascii_strcasecmp (name, "tiny") == 0)
+    {
+      config->base_filters = 2; /* 3 levels, 2 base filters, 2 convolutions: 1,883 weights */
+      return TRUE;
+    }
+  g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_USAGE, "--size '%s': use standard or tiny "
+               "(or --levels, --filters, --convs)", name);
+  return FALSE;
+}
+
+/* ---- the command ----------------------------------------------------------------------------- */
+
+static volatile sig_atomic_t interrupted = 0;
+
+static void
+on_interrupt (int signal_number)
+{
+  interrupted = 1;
+}
+
+typedef struct {
+  gint64 start;
+  int every;      /* print every this many steps */
+  int calls;
+  gboolean quiet;
+} Printer;
+
+static gboolean
+print_progress (double fraction, const char *message, gpointer data)
+{
+  Printer *p = data;
+  p->calls++;
+  if (!p->quiet && (p->calls % p->every == 0 || fraction >= 1.0))
+    fprintf (stderr, "rete train: %s (%.0f s)\n", message,
+             (g_get_monotonic_time () - p->start) / 1e6);
+  if (interrupted)
+    fprintf (stderr, "rete train: interrupted; checkpoint written, resume with --resume\n");
+  return !interrupted;
+}
+
+static gboolean
+parse_augment (const char *text, guint *flags, GError **error)
+{
+  static const struct { const char *name; guint flag; } names[] = {
+    { "flip", RETE_AUGMENT_FLIP }, { "rotate90", RETE_AUGMENT_ROTATE90 },
+    { "rotate", RETE_AUGMENT_ROTATE }, { "brightness", RETE_AUGMENT_BRIGHTNESS },
+    { "contrast", RETE_AUGMENT_CONTRAST }, { "gamma", RETE_AUGMENT_GAMMA },
+    { "all", RETE_AUGMENT_ALL }, { "none", 0 },
+  };
+  *flags = 0;
+  g_auto (GStrv) parts = g_strsplit (text, ",", -1);
+  for (int i = 0; parts[i] != NULL; i++)
+    {
+      gboolean found = FALSE;
+      for (gsize k = 0; k < G_N_ELEMENTS (names) && !found; k++)
+        if (g_ascii_strcasecmp (g_strstrip (parts[i]), names[k].name) == 0)
+          {
+            *flags |= names[k].flag;
+            found = TRUE;
+          }
+      if (!found)
+        {
+          g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_USAGE, "--augment: '%s' is not one "
+                       "of flip, rotate90, rotate, brightness, contrast, gamma, all, none",
+                       parts[i]);
+          return FALSE;
+        }
+    }
+  return TRUE;
+}
+
+static const char description[] =
+  "Trains a U-Net on photographs (files or folders) and their manual vessel annotations,\n"
+  "matched by name (NAME.jpg with NAME.png, NAME_1stHO.png, NAME_manual1.png ... in the\n"
+  "annotations folder; masks NAME_mask.png, NAME-fov.png ... in the masks folder, else the\n"
+  "field of view is detected). Patches are drawn inside the field of view. The photographs\n"
+  "named by --validate are held out; the model kept is the one with the best validation AUC.\n"
+  "A checkpoint (OUTPUT.checkpoint) is rewritten as training goes: after an interruption\n"
+  "(Ctrl-C, a killed run) the same command with --resume continues where it stopped.\n"
+  "\n"
+  "Examples:\n"
+  "  rete train --annotations chase_db1/manual1 --masks chase_db1/mask \\\n"
+  "      --validate Image_09L,Image_09R,Image_10L,Image_10R --size tiny \\\n"
+  "      --output tiny.safetensors chase_db1/images\n"
+  "  rete train --start-model standard --annotations corrected/ --steps 500 \\\n"
+  "      --output mine.safetensors photos/      (fine-tune the shipped model)\n";
+
+int
+rete_cmd_train (int argc, char **argv)
+{
+  const char *command = argv[0];
+  ReteTrainConfig config;
+  rete_train_config_init (&config);
+  ReteTrainDataOptions data = { 0 };
+  char *size = NULL, *output = NULL, *checkpoint = NULL, *log = NULL, *validate = NULL;
+  char *start_name = NULL, *augment = NULL;
+  int levels = 0, filters = 0, convs = 0, print_every = 0;
+  gint64 seed = 1;
+  gboolean resume = FALSE, quiet = FALSE, evaluate = FALSE;
+  double balance = -1;
+  GOptionEntry entries[] = {
+    { "annotations", 'a', 0, G_OPTION_ARG_FILENAME, &data.annotations,
+      "Folder of the manual vessel annotations (0/255 images)", "FOLDER" },
+    { "masks", 'm', 0, G_OPTION_ARG_FILENAME, &data.masks,
+      "Folder of field-of-view masks (default: detect the field of view)", "FOLDER" },
+    { "validate", 'v', 0, G_OPTION_ARG_STRING, &validate,
+      "Photographs held out for validation, by name: Image_09L,Image_09R,...", "NAMES" },
+    { "output", 'o', 0, G_OPTION_ARG_FILENAME, &output, "The model file to write (.safetensors)",
+      "FILE" },
+    { "size", 0, 0, G_OPTION_ARG_STRING, &size,
+      "Network size: standard (3 levels, 16 filters, ~1e5 weights) or tiny (3 levels, 2 filters, "
+      "1,883 weights); default standard", "NAME" },
+    { "levels", 0, 0, G_OPTION_ARG_INT, &levels, "Levels of the U-Net, 1..5 (overrides --size)", "N" },
+    { "filters", 0, 0, G_OPTION_ARG_INT, &filters, "Filters of the first level, doubling per level", "N" },
+    { "convs", 0, 0, G_OPTION_ARG_INT, &convs, "Convolutions per block, 1 or 2", "N" },
+    { "steps", 0, 0, G_OPTION_ARG_INT, &config.steps, "Optimiser steps (default 2000)", "N" },
+    { "batch", 0, 0, G_OPTION_ARG_INT, &config.batch_size, "Patches per step (default 16)", "N" },
+    { "patch", 0, 0, G_OPTION_ARG_INT, &config.patches.patch_size,
+      "Patch side in pixels, a multiple of 2^(levels-1) (default 64)", "PX" },
+    { "learning-rate", 0, 0, G_OPTION_ARG_DOUBLE, &config.learning_rate,
+      "Adam's base rate (default 1e-3), warm-up then cosine decay", "RATE" },
+    { "weight-decay", 0, 0, G_OPTION_ARG_DOUBLE, &config.weight_decay,
+      "Decoupled weight decay (default 1e-4)", "W" },
+    { "dice-weight", 0, 0, G_OPTION_ARG_DOUBLE, &config.dice_weight,
+      "Weight of the soft Dice loss beside cross-entropy (default 0.5)", "W" },
+    { "balance", 0, 0, G_OPTION_ARG_DOUBLE, &balance,
+      "Fraction of patches centred on a vessel pixel, 0..1 (default: uniform in the FOV)", "F" },
+    { "augment", 0, 0, G_OPTION_ARG_STRING, &augment,
+      "Augmentations: all (default), none, or flip,rotate90,rotate,brightness,contrast,gamma", "LIST" },
+    { "rotation", 0, 0, G_OPTION_ARG_DOUBLE, &config.patches.max_rotation_degrees,
+      "Largest small rotation in degrees (default 15)", "DEG" },
+    { "validate-every", 0, 0, G_OPTION_ARG_INT, &config.validate_every,
+      "Steps between validations (default 200)", "N" },
+    { "patience", 0, 0, G_OPTION_ARG_INT, &config.patience,
+      "Stop after this many validations without improvement (default 0: never)", "N" },
+    { "seed", 0, 0, G_OPTION_ARG_INT64, &seed, "Seed of initialisation and patches (default 1)", "N" },
+    { "start-model", 0, 0, G_OPTION_ARG_FILENAME, &start_name,
+      "Fine-tune this model (name or file) instead of starting afresh", "MODEL" },
+    { "checkpoint", 0, 0, G_OPTION_ARG_FILENAME, &checkpoint,
+      "Checkpoint file (default OUTPUT.checkpoint)", "FILE" },
+    { "resume", 0, 0, G_OPTION_ARG_NONE, &resume, "Continue from the checkpoint when it exists", NULL },
+    { "log", 0, 0, G_OPTION_ARG_FILENAME, &log, "CSV log of loss and validation AUC (default "
+      "OUTPUT without extension + .csv)", "FILE" },
+    { "channel", 0, 0, G_OPTION_ARG_STRING, &data.channel,
+      "Channel read from the photograph: green (default), luminance, red, blue", "NAME" },
+    { "no-clahe", 0, 0, G_OPTION_ARG_NONE, &data.no_clahe, "No CLAHE before standardising", NULL },
+    { "print-every", 0, 0, G_OPTION_ARG_INT, &print_every, "Progress line every N steps "
+      "(default: each validation)", "N" },
+    { "evaluate", 0, 0, G_OPTION_ARG_NONE, &evaluate, "Do not train: figures of the start "
+      "model on the validation photographs, written into its metadata in OUTPUT", NULL },
+    { "quiet", 'q', 0, G_OPTION_ARG_NONE, &quiet, "Only errors and the summary", NULL },
+    { NULL },
+  };
+  GOptionContext *context = rete_cli_context_new (command, "PHOTO|FOLDER…",
+                                                  "Train a U-Net vessel model.", description);
+  g_option_context_add_main_entries (context, entries, NULL);
+  int status = RETE_EXIT_OK;
+  GError *error = NULL;
+  ReteModel *prep = NULL, *start = NULL, *model = NULL;
+  GPtrArray *pairs = NULL;
+  GArray *training = NULL, *validation = NULL;
+  char **meta = NULL;
+  GPtrArray *metadata = NULL;
+  char *base = NULL, *checkpoint_default = NULL, *log_default = NULL, *joined = NULL, *line = NULL;
+  if (!rete_cli_parse (context, command, &argc, &argv))
+    {
+      status = RETE_EXIT_USAGE;
+      goto out;
+    }
+  if (argc < 2 || output == NULL)
+    {
+      status = rete_cli_usage_error (command, argc < 2 ? "no photographs given"
+                                              : "--output FILE is needed (the model to write)");
+      goto out;
+    }
+  if (!rete_train_size_preset (size, &config.unet, &error)
+      || (augment != NULL && !parse_augment (augment, &config.patches.augment, &error)))
+    {
+      status = rete_cli_usage_error (command, "%s", error->message);
+      goto out;
+    }
+  if (levels > 0) config.unet.levels = levels;
+  if (filters > 0) config.unet.base_filters = filters;
+  if (convs > 0) config.unet.convs_per_block = convs;
+  config.patches.balance = balance;
+  config.seed = (guint64) seed;
+  if (start_name != NULL)
+    {
+      char *path = rete_cli_find_model (start_name, &error);
+      start = path ? rete_model_load (path, &error) : NULL;
+      g_free (path);
+      if (start == NULL)
+        goto failed;
+      config.start_model = start;
+    }
+  else if ((prep = rete_train_preprocessing_model (&data, &error)) == NULL)
+    {
+      status = rete_cli_usage_error (command, "%s", error->message);
+      goto out;
+    }
+  if (!quiet)
+    fprintf (stderr, "rete train: reading and preparing the photographs...\n");
+  pairs = rete_train_pairs_load (argv + 1, &data, start ? start : prep, &error);
+  if (pairs == NULL || !rete_train_pairs_split (pairs, validate, &training, &validation, &error))
+    goto failed;
+  config.unet.in_channels = ((ReteTrainPair *) pairs->pdata[0])->input->channels;
+
+  base = g_str_has_suffix (output, ".safetensors")
+                          ? g_strndup (output, strlen (output) - strlen (".safetensors"))
+                          : g_strdup (output);
+  checkpoint_default = g_strconcat (output, ".checkpoint", NULL);
+  log_default = g_strconcat (base, ".csv", NULL);
+  config.checkpoint_path = checkpoint ? checkpoint : checkpoint_default;
+  config.log_path = log ? log : log_default;
+  config.resume = resume;
+
+  /* preprocessing, data and the command that made the model, in every file written */
+  metadata = g_ptr_array_new_with_free_func (g_free);
+  meta = rete_train_preprocessing_metadata (start ? start : prep);
+  for (int i = 0; meta[i] != NULL; i++)
+    g_ptr_array_add (metadata, g_strdup (meta[i]));
+  joined = g_strjoinv (" ", argv + 1);
+  line = g_strdup_printf ("rete train --annotations %s%s%s%s%s --size %s "
+                                           "--steps %d --batch %d --patch %d --seed %" G_GINT64_FORMAT " %s",
+                                           data.annotations, data.masks ? " --masks " : "",
+                                           data.masks ? data.masks : "",
+                                           validate ? " --validate " : "", validate ? validate : "",
+                                           size ? size : "standard", config.steps,
+                                           config.batch_size, config.patches.patch_size, seed,
+                                           joined);
+  const char *pairs_meta[] = {
+    "command", line, "validation_photographs", validate ? validate : "",
+    "size", levels || filters || convs ? "custom" : (size ? size : "standard"),
+    "start_model", start_name,
+  };
+  for (gsize i = 0; i < G_N_ELEMENTS (pairs_meta); i += 2)
+    if (pairs_meta[i + 1] != NULL)
+      {
+        g_ptr_array_add (metadata, g_strdup (pairs_meta[i]));
+        g_ptr_array_add (metadata, g_strdup (pairs_meta[i + 1]));
+      }
+  g_ptr_array_add (metadata, NULL);
+  config.metadata = (const char *const *) metadata->pdata;
+  if (!rete_train_config_check (&config, &error))
+    {
+      status = rete_cli_usage_error (command, "%s", error->message);
+      goto out;
+    }
+  if (evaluate)
+    {
+      if (start == NULL || validation->len == 0)
+        {
+          status = rete_cli_usage_error (command, "--evaluate needs --start-model and --validate");
+          goto out;
+        }
+      model = g_steal_pointer (&start);
+      config.start_model = NULL;
+      goto figures;
+    }
+  config.best_model_path = output; /* the best model so far is always on disk */
+  if (!quiet)
+    fprintf (stderr, "rete train: %u training and %u validation photographs; log %s, "
+             "checkpoint %s\n", training->len, validation->len, config.log_path,
+             config.checkpoint_path);
+
+  signal (SIGINT, on_interrupt);
+  signal (SIGTERM, on_interrupt);
+  Printer printer = { g_get_monotonic_time (), print_every > 0 ? print_every : config.validate_every,
+                      0, quiet };
+  ReteTrainReport report;
+  model = rete_train (&config, (ReteTrainSample *) training->data, (int) training->len,
+                      (ReteTrainSample *) validation->data, (int) validation->len,
+                      print_progress, &printer, &report, &error);
+  signal (SIGINT, SIG_DFL);
+  signal (SIGTERM, SIG_DFL);
+  if (model == NULL)
+    goto failed;
+  if (!quiet)
+    printf ("model %s: %" G_GSIZE_FORMAT " weights, %d steps (best at %d), %d restart(s), "
+            "%.0f s this run%s\n", output, rete_unet_n_params (rete_model_net (model)),
+            report.step, report.best_step, report.restarts, report.seconds,
+            report.stopped_early ? ", stopped early" : "");
+figures:
+  if (validation->len > 0)
+    {
+      ReteTrainFigures f;
+      if (!rete_train_figures (model, validation, &f, &error))
+        goto failed;
+      char buf[32];
+#define META(key, value) (g_snprintf (buf, sizeof buf, "%.4f", value), rete_model_set_meta (model, key, buf))
+      META ("validation_auc", f.auc);
+      META ("validation_accuracy", f.accuracy);
+      META ("validation_sensitivity", f.sensitivity);
+      META ("validation_specificity", f.specificity);
+#undef META
+      rete_model_set_meta (model, "validation_threshold", "0.5");
+      rete_model_set_meta (model, "validation_reference", data.annotations);
+      printf ("validation (%u photographs, inside the FOV, threshold 0.5): AUC %.4f accuracy "
+              "%.4f sensitivity %.4f specificity %.4f; inference %.2f s per photograph\n",
+              validation->len, f.auc, f.accuracy, f.sensitivity, f.specificity,
+              f.seconds_per_image);
+    }
+  if (!rete_model_save (model, output, &error))
+    goto failed;
+  goto out;
+failed:
+  fprintf (stderr, "%s: %s\n", command, error ? error->message : "failed");
+  status = RETE_EXIT_FAILED;
+out:
+  g_clear_error (&error);
+  rete_model_free (model);
+  rete_model_free (prep);
+  rete_model_free (start);
+  if (training) g_array_unref (training);
+  if (validation) g_array_unref (validation);
+  if (pairs) g_ptr_array_unref (pairs);
+  if (metadata) g_ptr_array_unref (metadata);
+  g_strfreev (meta);
+  g_option_context_free (context);
+  g_free (data.annotations); g_free (data.masks); g_free (data.channel);
+  g_free (size); g_free (output); g_free (checkpoint); g_free (log); g_free (validate);
+  g_free (start_name); g_free (augment);
+  g_free (base); g_free (checkpoint_default); g_free (log_default); g_free (joined); g_free (line);
+  return status;
+}
