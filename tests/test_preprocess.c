@@ -186,7 +186,7 @@ test_clahe_matches_skimage (gconstpointer data)
   double max_diff, mean_diff;
   gsize where;
   compare (ours, reference, &max_diff, &mean_diff, &where);
-  g_test_message ("%s %d×%d: largest difference %.3g at (%d, %d), mean %.3g "
+  g_test_message ("%s %dx%d: largest difference %.3g at (%d, %d), mean %.3g "
                   "(tolerance %.2g and %.2g)", tc->name, tc->width, tc->height, max_diff,
                   (int) (where % tc->width), (int) (where / tc->width), mean_diff,
                   CLAHE_MAX_TOLERANCE, CLAHE_MEAN_TOLERANCE);

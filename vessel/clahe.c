@@ -25,15 +25,18 @@
  * mapping use the number of FOV pixels in it, tiles with fewer than 1/16 of their area inside
  * take the mean mapping of their neighbours (repeated outwards), and pixels outside are 0.
  * The surround then has no influence at all on the result inside.
+ * This file holds the pixel passes (threaded by rows); clahe_tiles.c the histograms.
  */
-#include "rete_preprocess.h"
+#include "clahe_private.h"
 #include "rete_fov.h"
 
 #include <math.h>
 #include <string.h>
+#ifdef __SSE2__
+#include <emmintrin.h>
+#endif
 
-#define GREY_LEVELS 16384 /* skimage's NR_OF_GRAY: the 14-bit working range */
-#define MIN_FOV_FRACTION 16 /* a tile needs 1/16 of its area inside the FOV for a mapping */
+#define GREY_LEVELS RETE_CLAHE_GREY_LEVELS
 
 void
 rete_clahe_params_init (ReteClaheParams *params)
@@ -46,305 +49,208 @@ rete_clahe_params_init (ReteClaheParams *params)
 }
 
 typedef struct {
-  const float *grey;      /* (height, width) */
-  const float *fov;       /* (height, width) or NULL */
-  int width, height;
-  int kw, kh;             /* tile size, pixels */
-  int nx, ny;             /* tiles across and down: ceil(width / kw), ceil(height / kh) */
-  int n_bins;             /* histogram length (as skimage's bincount minlength) */
-  int bin_size;           /* 1 + 16384 / n_bins */
-  double clip_limit;
-  const int *mirror_x;    /* (nx * kw) column read for each tile column position */
-  const int *mirror_y;    /* (ny * kh) */
-  guint16 *bins;          /* (height, width) 16-bit value, then bin */
-  const guint16 *lut;     /* (65536) 16-bit value -> bin */
-  guint32 *hist;          /* (ny, nx, n_bins) */
-  gint64 *count;          /* (ny, nx) pixels that entered each histogram */
-  float *maps;            /* (ny, nx, n_bins) mapping of each bin, 0..16383 */
-  const int *col_left;    /* (width) left tile index * n_bins */
-  const int *col_right;   /* (width) */
-  const float *col_w;     /* (width) weight of the right tile */
+  ReteClaheTiles tiles;
+  const float *weight_x;  /* (kw) weight of the right tile at each offset in a block */
   float *out;             /* (height, width) */
-  /* per worker chunk results of the range passes */
-  GMutex lock;
-  int u_min, u_max;
-  float v_min, v_max;
-  gboolean out_of_range;
+  GMutex lock;            /* guards the results of the chunks below */
+  float g_min, g_max;     /* input range inside the FOV */
+  gboolean any_inside, any_not_finite;
+  float v_min, v_max;     /* interpolated range inside the FOV */
 } Clahe;
 
-static inline gboolean
-inside (const Clahe *c, gsize i)
-{
-  return c->fov == NULL || c->fov[i] > 0.5f;
-}
-
-/* Pass 1: 16-bit values and their range (inside the FOV). */
+/* Pass 1: range of the input inside the FOV, whether the FOV has a pixel, values that are
+ * not numbers (x - x is 0 for every finite x, NaN for NaN and infinities). */
 static void
-quantise_rows (int first, int last, gpointer data)
+range_rows (int first, int last, gpointer data)
 {
   Clahe *c = data;
-  int lo = 65535, hi = 0;
-  gboolean bad = FALSE;
+  const ReteClaheTiles *t = &c->tiles;
+  float lo = G_MAXFLOAT, hi = -G_MAXFLOAT;
+  gboolean any_in = FALSE, any_bad = FALSE;
   for (int y = first; y < last; y++)
-    for (int x = 0; x < c->width; x++)
-      {
-        gsize i = (gsize) y * c->width + x;
-        float v = c->grey[i];
-        if (!(v >= 0.0f && v <= 1.0f)) /* also catches NaN */
-          {
-            bad = TRUE;
-            v = isnan (v) ? 0.0f : CLAMP (v, 0.0f, 1.0f);
-          }
-        int u = (int) rintf (v * 65535.0f); /* float32 product, as img_as_uint on float32 */
-        c->bins[i] = (guint16) u;
-        if (inside (c, i))
-          {
-            lo = MIN (lo, u);
-            hi = MAX (hi, u);
-          }
-      }
+    {
+      const float *g = t->grey + (gsize) y * t->width;
+      const float *f = t->fov ? t->fov + (gsize) y * t->width : NULL;
+      int x = 0;
+#ifdef __SSE2__
+      __m128 lo4 = _mm_set1_ps (lo), hi4 = _mm_set1_ps (hi), bad4 = _mm_setzero_ps ();
+      __m128 in4 = _mm_setzero_ps (), zero = _mm_setzero_ps (), half = _mm_set1_ps (0.5f);
+      __m128 big = _mm_set1_ps (G_MAXFLOAT), small = _mm_set1_ps (-G_MAXFLOAT);
+      for (; x + 4 <= t->width; x += 4)
+        {
+          __m128 v = _mm_loadu_ps (g + x);
+          bad4 = _mm_or_ps (bad4, _mm_cmpneq_ps (_mm_sub_ps (v, v), zero));
+          if (f != NULL)
+            {
+              __m128 m = _mm_loadu_ps (f + x);
+              bad4 = _mm_or_ps (bad4, _mm_cmpneq_ps (_mm_sub_ps (m, m), zero));
+              __m128 in = _mm_cmpgt_ps (m, half);
+              in4 = _mm_or_ps (in4, in);
+              lo4 = _mm_min_ps (lo4, _mm_or_ps (_mm_and_ps (in, v), _mm_andnot_ps (in, big)));
+              hi4 = _mm_max_ps (hi4, _mm_or_ps (_mm_and_ps (in, v), _mm_andnot_ps (in, small)));
+            }
+          else
+            {
+              lo4 = _mm_min_ps (lo4, v);
+              hi4 = _mm_max_ps (hi4, v);
+            }
+        }
+      float l[4], h[4];
+      _mm_storeu_ps (l, lo4);
+      _mm_storeu_ps (h, hi4);
+      for (int k = 0; k < 4; k++)
+        {
+          lo = MIN (lo, l[k]);
+          hi = MAX (hi, h[k]);
+        }
+      any_bad |= _mm_movemask_ps (bad4) != 0;
+      any_in |= _mm_movemask_ps (in4) != 0 || (f == NULL && x > 0);
+#endif
+      for (; x < t->width; x++)
+        {
+          float v = g[x];
+          gboolean in = f == NULL || f[x] > 0.5f;
+          any_in |= in;
+          any_bad |= !(v - v == 0.0f) || (f != NULL && !(f[x] - f[x] == 0.0f));
+          if (in)
+            {
+              lo = MIN (lo, v);
+              hi = MAX (hi, v);
+            }
+        }
+    }
   g_mutex_lock (&c->lock);
-  c->u_min = MIN (c->u_min, lo);
-  c->u_max = MAX (c->u_max, hi);
-  c->out_of_range |= bad;
+  c->g_min = MIN (c->g_min, lo);
+  c->g_max = MAX (c->g_max, hi);
+  c->any_inside |= any_in;
+  c->any_not_finite |= any_bad;
   g_mutex_unlock (&c->lock);
 }
 
+/* Smallest and largest of v[0..n) where f > 0.5 (everywhere when f is NULL), folded into
+ * *lo and *hi. */
 static void
-bin_rows (int first, int last, gpointer data)
+row_range (const float *v, const float *f, int n, float *lo, float *hi)
 {
-  Clahe *c = data;
-  for (gsize i = (gsize) first * c->width; i < (gsize) last * c->width; i++)
-    c->bins[i] = c->lut[c->bins[i]];
-}
-
-/* Zuiderveld's ClipHistogram in skimage's formulation: clip, spread the excess evenly,
- * then hand out the remainder one by one along strides. */
-static void
-clip_histogram (guint32 *hist, int n, gint64 clip)
-{
-  gint64 n_excess = 0;
-  for (int i = 0; i < n; i++)
-    if (hist[i] > clip)
+  int x = 0;
+  float l = *lo, h = *hi;
+#ifdef __SSE2__
+  __m128 lo4 = _mm_set1_ps (l), hi4 = _mm_set1_ps (h), half = _mm_set1_ps (0.5f);
+  for (; x + 4 <= n; x += 4)
+    {
+      __m128 a = _mm_loadu_ps (v + x);
+      if (f != NULL)
+        {
+          __m128 in = _mm_cmpgt_ps (_mm_loadu_ps (f + x), half);
+          lo4 = _mm_min_ps (lo4, _mm_or_ps (_mm_and_ps (in, a), _mm_andnot_ps (in, lo4)));
+          hi4 = _mm_max_ps (hi4, _mm_or_ps (_mm_and_ps (in, a), _mm_andnot_ps (in, hi4)));
+        }
+      else
+        {
+          lo4 = _mm_min_ps (lo4, a);
+          hi4 = _mm_max_ps (hi4, a);
+        }
+    }
+  float ls[4], hs[4];
+  _mm_storeu_ps (ls, lo4);
+  _mm_storeu_ps (hs, hi4);
+  for (int k = 0; k < 4; k++)
+    {
+      l = MIN (l, ls[k]);
+      h = MAX (h, hs[k]);
+    }
+#endif
+  for (; x < n; x++)
+    if (f == NULL || f[x] > 0.5f)
       {
-        n_excess += hist[i] - clip;
-        hist[i] = (guint32) clip;
+        l = MIN (l, v[x]);
+        h = MAX (h, v[x]);
       }
-  gint64 increment = n_excess / n;
-  gint64 upper = clip - increment;
-  int n_under = 0;
-  for (int i = 0; i < n; i++)
-    {
-      gint64 h = hist[i];
-      if (h < upper)
-        {
-          h += increment;
-          n_excess -= increment;
-        }
-      if (h >= upper && h < clip)
-        {
-          n_excess += h - clip;
-          h = clip;
-        }
-      hist[i] = (guint32) h;
-      n_under += h < clip;
-    }
-  while (n_excess > 0 && n_under > 0)
-    {
-      gint64 previous = n_excess;
-      for (int index = 0; index < n && n_under > 0; index++)
-        {
-          int step = (int) MAX (1, n_under / n_excess);
-          gint64 given = 0;
-          for (int i = index; i < n; i += step)
-            if (hist[i] < clip)
-              {
-                hist[i]++;
-                given++;
-                n_under -= hist[i] == clip;
-              }
-          n_excess -= given;
-          if (n_excess <= 0)
-            break;
-        }
-      if (previous == n_excess)
-        break;
-    }
+  *lo = l;
+  *hi = h;
 }
 
-/* Pass 2: one row of tiles: histograms, clipping, mappings. */
-static void
-tile_rows (int first, int last, gpointer data)
-{
-  Clahe *c = data;
-  for (int ty = first; ty < last; ty++)
-    {
-      guint32 *row_hist = c->hist + (gsize) ty * c->nx * c->n_bins;
-      memset (row_hist, 0, sizeof (guint32) * c->nx * c->n_bins);
-      gint64 *row_count = c->count + (gsize) ty * c->nx;
-      memset (row_count, 0, sizeof (gint64) * c->nx);
-      for (int r = ty * c->kh; r < (ty + 1) * c->kh; r++)
-        {
-          gsize row = (gsize) c->mirror_y[r] * c->width;
-          const guint16 *b = c->bins + row;
-          const float *f = c->fov ? c->fov + row : NULL;
-          for (int tx = 0; tx < c->nx; tx++)
-            {
-              guint32 *h = row_hist + (gsize) tx * c->n_bins;
-              int x0 = tx * c->kw, x1 = x0 + c->kw;
-              int n_in = 0;
-              if (f == NULL && x1 <= c->width)
-                {
-                  for (int x = x0; x < x1; x++)
-                    h[b[x]]++;
-                  n_in = c->kw;
-                }
-              else
-                for (int p = x0; p < x1; p++)
-                  {
-                    int x = c->mirror_x[p];
-                    if (f == NULL || f[x] > 0.5f)
-                      {
-                        h[b[x]]++;
-                        n_in++;
-                      }
-                  }
-              row_count[tx] += n_in;
-            }
-        }
-      for (int tx = 0; tx < c->nx; tx++)
-        {
-          guint32 *h = row_hist + (gsize) tx * c->n_bins;
-          float *map = c->maps + ((gsize) ty * c->nx + tx) * c->n_bins;
-          gint64 n_pixels = row_count[tx];
-          if (n_pixels == 0)
-            continue;
-          gint64 clip = (gint64) MAX (c->clip_limit * (double) n_pixels, 1.0);
-          clip_histogram (h, c->n_bins, clip);
-          double factor = (GREY_LEVELS - 1.0) / (double) n_pixels;
-          gint64 sum = 0;
-          for (int k = 0; k < c->n_bins; k++)
-            {
-              sum += h[k];
-              map[k] = (float) floor (MIN ((double) sum * factor, GREY_LEVELS - 1.0));
-            }
-        }
-    }
-}
-
-/* Tiles with too few FOV pixels take the mean mapping of their neighbours that have one,
- * ring after ring, until every tile has a mapping. */
-static void
-fill_missing_maps (Clahe *c)
-{
-  int n_tiles = c->nx * c->ny;
-  gint64 area = (gint64) c->kw * c->kh;
-  gint64 need = MAX (1, area / MIN_FOV_FRACTION);
-  gboolean any = FALSE;
-  for (int t = 0; t < n_tiles; t++)
-    any |= c->count[t] >= need;
-  if (!any) /* a small FOV: every tile that saw a pixel keeps its mapping */
-    need = 1;
-  guint8 *valid = g_new0 (guint8, n_tiles);
-  guint8 *next = g_new0 (guint8, n_tiles);
-  int missing = 0;
-  for (int t = 0; t < n_tiles; t++)
-    {
-      valid[t] = c->count[t] >= need;
-      missing += !valid[t];
-    }
-  while (missing > 0)
-    {
-      memcpy (next, valid, n_tiles);
-      for (int ty = 0; ty < c->ny; ty++)
-        for (int tx = 0; tx < c->nx; tx++)
-          {
-            int t = ty * c->nx + tx;
-            if (valid[t])
-              continue;
-            float *map = c->maps + (gsize) t * c->n_bins;
-            int n = 0;
-            for (int dy = -1; dy <= 1; dy++)
-              for (int dx = -1; dx <= 1; dx++)
-                {
-                  int sy = ty + dy, sx = tx + dx;
-                  if (sy < 0 || sy >= c->ny || sx < 0 || sx >= c->nx || !valid[sy * c->nx + sx])
-                    continue;
-                  const float *source = c->maps + ((gsize) sy * c->nx + sx) * c->n_bins;
-                  if (n == 0)
-                    memset (map, 0, sizeof (float) * c->n_bins);
-                  for (int k = 0; k < c->n_bins; k++)
-                    map[k] += source[k];
-                  n++;
-                }
-            if (n > 0)
-              {
-                for (int k = 0; k < c->n_bins; k++)
-                  map[k] /= n;
-                next[t] = 1;
-                missing--;
-              }
-          }
-      memcpy (valid, next, n_tiles);
-    }
-  g_free (valid);
-  g_free (next);
-}
-
-/* Pass 3: bilinear interpolation between the four surrounding mappings. */
+/* Pass 2 (clahe_tiles.c): bins, histograms, mappings.
+ * Pass 3: bilinear interpolation between the mappings of the four tiles around each pixel.
+ * A row blends its two tile rows once (into `row_maps`); each block of columns then reads two
+ * blended mappings. */
 static void
 interpolate_rows (int first, int last, gpointer data)
 {
   Clahe *c = data;
+  const ReteClaheTiles *t = &c->tiles;
+  int nb = t->n_bins, kw = t->kw;
+  float *row_maps = g_new (float, (gsize) t->nx * nb);
   float lo = G_MAXFLOAT, hi = -G_MAXFLOAT;
   for (int y = first; y < last; y++)
     {
-      int p = y + c->kh / 2;
-      int j = p / c->kh;
-      float wy = (float) ((double) (p % c->kh) / c->kh);
-      int top = CLAMP (j - 1, 0, c->ny - 1), bottom = CLAMP (j, 0, c->ny - 1);
-      const float *m0 = c->maps + (gsize) top * c->nx * c->n_bins;
-      const float *m1 = c->maps + (gsize) bottom * c->nx * c->n_bins;
-      gsize row = (gsize) y * c->width;
-      const guint16 *b = c->bins + row;
+      int p = y + t->kh / 2, j = p / t->kh;
+      float wy = (float) ((double) (p % t->kh) / t->kh);
+      const float *m0 = t->maps + (gsize) CLAMP (j - 1, 0, t->ny - 1) * t->nx * nb;
+      const float *m1 = t->maps + (gsize) CLAMP (j, 0, t->ny - 1) * t->nx * nb;
+      for (int k = 0; k < t->nx * nb; k++)
+        row_maps[k] = m0[k] + wy * (m1[k] - m0[k]);
+      gsize row = (gsize) y * t->width;
+      const guint16 *b = t->bins + row;
       float *out = c->out + row;
-      for (int x = 0; x < c->width; x++)
+      /* column x sits at x + kw/2 on the grid of blocks; block jx blends tiles jx-1 and jx */
+      for (int jx = 0, x = 0; x < t->width; jx++)
         {
-          int k = b[x], l = c->col_left[x] + k, r = c->col_right[x] + k;
-          float wx = c->col_w[x];
-          float t = m0[l] + wx * (m0[r] - m0[l]);
-          float u = m1[l] + wx * (m1[r] - m1[l]);
-          out[x] = t + wy * (u - t);
+          int start = jx * kw - kw / 2, stop = MIN (start + kw, t->width);
+          const float *left = row_maps + (gsize) CLAMP (jx - 1, 0, t->nx - 1) * nb;
+          const float *right = row_maps + (gsize) CLAMP (jx, 0, t->nx - 1) * nb;
+          const float *w = c->weight_x - start;
+#ifdef __SSE2__
+          for (; x + 4 <= stop; x += 4)
+            {
+              __m128 l = _mm_setr_ps (left[b[x]], left[b[x + 1]], left[b[x + 2]], left[b[x + 3]]);
+              __m128 r = _mm_setr_ps (right[b[x]], right[b[x + 1]], right[b[x + 2]],
+                                      right[b[x + 3]]);
+              __m128 o = _mm_add_ps (l, _mm_mul_ps (_mm_loadu_ps (w + x), _mm_sub_ps (r, l)));
+              _mm_storeu_ps (out + x, o);
+            }
+#endif
+          for (; x < stop; x++)
+            {
+              float l = left[b[x]], r = right[b[x]];
+              out[x] = l + w[x] * (r - l);
+            }
         }
-      for (int x = 0; x < c->width; x++)
-        if (inside (c, row + x))
-          {
-            lo = MIN (lo, out[x]);
-            hi = MAX (hi, out[x]);
-          }
+      row_range (out, t->fov ? t->fov + row : NULL, t->width, &lo, &hi);
     }
+  g_free (row_maps);
   g_mutex_lock (&c->lock);
   c->v_min = MIN (c->v_min, lo);
   c->v_max = MAX (c->v_max, hi);
   g_mutex_unlock (&c->lock);
 }
 
-/* Pass 4: the result stretched to [0, 1] inside the FOV, 0 outside. */
+/* Pass 4: the result stretched to [0, 1] inside the FOV (skimage's final
+ * rescale_intensity), 0 outside; a flat result is 1 (skimage clips it into [0, 1]). */
 static void
 stretch_rows (int first, int last, gpointer data)
 {
   Clahe *c = data;
+  const float *fov = c->tiles.fov;
   float lo = c->v_min, range = c->v_max - c->v_min;
-  float scale = range > 0 ? 1.0f / range : 0.0f;
-  for (gsize i = (gsize) first * c->width; i < (gsize) last * c->width; i++)
+  float scale = range > 0 ? 1.0f / range : 0.0f, offset = range > 0 ? 0.0f : 1.0f;
+  gsize i0 = (gsize) first * c->tiles.width, i1 = (gsize) last * c->tiles.width;
+  float *out = c->out;
+  gsize i = i0;
+#ifdef __SSE2__
+  __m128 lo4 = _mm_set1_ps (lo), scale4 = _mm_set1_ps (scale), offset4 = _mm_set1_ps (offset);
+  __m128 half = _mm_set1_ps (0.5f);
+  for (; i + 4 <= i1; i += 4)
     {
-      if (!inside (c, i))
-        c->out[i] = 0.0f;
-      else if (range > 0)
-        c->out[i] = (c->out[i] - lo) * scale;
-      else /* a flat image: skimage clips the flat result into [0, 1], giving 1 */
-        c->out[i] = 1.0f;
+      __m128 o = _mm_add_ps (_mm_mul_ps (_mm_sub_ps (_mm_loadu_ps (out + i), lo4), scale4),
+                             offset4);
+      if (fov != NULL)
+        o = _mm_and_ps (o, _mm_cmpgt_ps (_mm_loadu_ps (fov + i), half));
+      _mm_storeu_ps (out + i, o);
     }
+#endif
+  for (; i < i1; i++)
+    out[i] = fov == NULL || fov[i] > 0.5f ? (out[i] - lo) * scale + offset : 0.0f;
 }
 
 /* Mirror ('reflect', edge not repeated) index of p in [0, n). */
@@ -411,113 +317,104 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
     return NULL;
   if (fov != NULL
       && (!rete_image_check_channels (fov, "the field of view", 1, error)
-          || !rete_image_check_same_size (grey, "the image", fov, "the field of view", error)
-          || !rete_image_check_finite (fov, "the field of view", error)))
+          || !rete_image_check_same_size (grey, "the image", fov, "the field of view", error)))
     return NULL;
-  if (fov != NULL && rete_mask_count (fov) == 0)
+
+  Clahe c;
+  memset (&c, 0, sizeof c);
+  ReteClaheTiles *t = &c.tiles;
+  t->grey = grey->data;
+  t->fov = fov ? fov->data : NULL;
+  t->width = grey->width;
+  t->height = grey->height;
+  c.g_min = c.v_min = G_MAXFLOAT;
+  c.g_max = c.v_max = -G_MAXFLOAT;
+  g_mutex_init (&c.lock);
+  rete_parallel_for (t->height, range_rows, &c);
+  if (c.any_not_finite)
     {
+      g_mutex_clear (&c.lock);
+      if (rete_image_check_finite (grey, "the image for CLAHE", error))
+        rete_image_check_finite (fov, "the field of view", error);
+      return NULL;
+    }
+  if (!c.any_inside)
+    {
+      g_mutex_clear (&c.lock);
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_EMPTY,
                    "the field of view is empty (no pixel above 0.5), so CLAHE has nothing to "
                    "equalise; detect the field of view again or give none");
       return NULL;
     }
-  if (!rete_image_check_finite (grey, "the image for CLAHE", error))
-    return NULL;
-
-  ReteImage *result = rete_image_new_like (grey, 1, error);
-  if (result == NULL)
-    return NULL;
-
-  Clahe c = { 0 };
-  c.grey = grey->data;
-  c.fov = fov ? fov->data : NULL;
-  c.width = grey->width;
-  c.height = grey->height;
-  c.kw = params->kernel_width > 0 ? params->kernel_width : MAX (grey->width / 8, 1);
-  c.kh = params->kernel_height > 0 ? params->kernel_height : MAX (grey->height / 8, 1);
-  c.nx = (c.width + c.kw - 1) / c.kw;
-  c.ny = (c.height + c.kh - 1) / c.kh;
-  c.n_bins = params->n_bins;
-  c.bin_size = 1 + GREY_LEVELS / c.n_bins;
-  c.clip_limit = params->clip_limit;
-  c.out = result->data;
-  c.u_min = 65535;
-  c.u_max = 0;
-  c.v_min = G_MAXFLOAT;
-  c.v_max = -G_MAXFLOAT;
-  g_mutex_init (&c.lock);
-
-  gsize n_pixels = rete_image_n_pixels (grey);
-  c.bins = g_new (guint16, n_pixels);
-  rete_parallel_for (c.height, quantise_rows, &c);
-  if (c.out_of_range)
+  if (c.g_min < 0.0f || c.g_max > 1.0f)
     {
-      g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
-                   "the image for CLAHE has values outside [0, 1]; rescale it to [0, 1] first");
-      g_free (c.bins);
       g_mutex_clear (&c.lock);
-      rete_image_free (result);
+      g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
+                   "the image for CLAHE has values from %g to %g%s, outside [0, 1]; rescale it "
+                   "to [0, 1] first", c.g_min, c.g_max, fov ? " inside the field of view" : "");
       return NULL;
     }
+  ReteImage *result = rete_image_new_like (grey, 1, error);
+  if (result == NULL)
+    {
+      g_mutex_clear (&c.lock);
+      return NULL;
+    }
+  c.out = result->data;
+  t->kw = params->kernel_width > 0 ? params->kernel_width : MAX (grey->width / 8, 1);
+  t->kh = params->kernel_height > 0 ? params->kernel_height : MAX (grey->height / 8, 1);
+  t->nx = (t->width + t->kw - 1) / t->kw;
+  t->ny = (t->height + t->kh - 1) / t->kh;
+  t->n_bins = params->n_bins;
+  t->clip_limit = params->clip_limit;
 
-  /* 16-bit -> 14-bit stretched over the range seen -> bin (skimage's rescale_intensity,
-   * np.round and lut //= bin_size). */
+  /* 16-bit value -> 14-bit stretched over the range seen -> bin: skimage's
+   * rescale_intensity (float64), np.round, and lut //= 1 + 16384 // nbins. */
+  int u_min = (int) rint (c.g_min * 65535.0f), u_max = (int) rint (c.g_max * 65535.0f);
+  int bin_size = 1 + GREY_LEVELS / t->n_bins;
   guint16 *lut = g_new0 (guint16, 65536);
-  double span = c.u_max - c.u_min;
+  double span = u_max - u_min;
   for (int u = 0; u < 65536; u++)
     {
       double q;
       if (span > 0)
-        q = rint ((CLAMP (u, c.u_min, c.u_max) - c.u_min) / span * (GREY_LEVELS - 1.0));
+        q = rint ((CLAMP (u, u_min, u_max) - u_min) / span * (GREY_LEVELS - 1.0));
       else
         q = MIN (u, GREY_LEVELS - 1);
-      lut[u] = (guint16) ((int) q / c.bin_size);
+      lut[u] = (guint16) ((int) q / bin_size);
     }
-  c.lut = lut;
-  rete_parallel_for (c.height, bin_rows, &c);
+  t->lut = lut;
+  t->bins = g_new (guint16, rete_image_n_pixels (grey));
 
-  int *mirror_x = g_new (int, (gsize) c.nx * c.kw);
-  int *mirror_y = g_new (int, (gsize) c.ny * c.kh);
-  for (int p = 0; p < c.nx * c.kw; p++)
-    mirror_x[p] = mirror (p, c.width);
-  for (int p = 0; p < c.ny * c.kh; p++)
-    mirror_y[p] = mirror (p, c.height);
-  c.mirror_x = mirror_x;
-  c.mirror_y = mirror_y;
-  gsize n_maps = (gsize) c.nx * c.ny * c.n_bins;
-  c.hist = g_new (guint32, n_maps);
-  c.count = g_new (gint64, (gsize) c.nx * c.ny);
-  c.maps = g_new0 (float, n_maps);
-  rete_parallel_for (c.ny, tile_rows, &c);
-  if (c.fov != NULL)
-    fill_missing_maps (&c);
+  int *mirror_x = g_new (int, (gsize) t->nx * t->kw);
+  int *mirror_y = g_new (int, (gsize) t->ny * t->kh);
+  for (int p = 0; p < t->nx * t->kw; p++)
+    mirror_x[p] = mirror (p, t->width);
+  for (int p = 0; p < t->ny * t->kh; p++)
+    mirror_y[p] = mirror (p, t->height);
+  t->mirror_x = mirror_x;
+  t->mirror_y = mirror_y;
+  gsize n_maps = (gsize) t->nx * t->ny * t->n_bins;
+  t->hist = g_new (guint32, n_maps);
+  t->count = g_new (gint64, (gsize) t->nx * t->ny);
+  t->maps = g_new0 (float, n_maps);
+  rete_clahe_tile_maps (t);
 
-  int *col_left = g_new (int, c.width);
-  int *col_right = g_new (int, c.width);
-  float *col_w = g_new (float, c.width);
-  for (int x = 0; x < c.width; x++)
-    {
-      int p = x + c.kw / 2, j = p / c.kw;
-      col_left[x] = CLAMP (j - 1, 0, c.nx - 1) * c.n_bins;
-      col_right[x] = CLAMP (j, 0, c.nx - 1) * c.n_bins;
-      col_w[x] = (float) ((double) (p % c.kw) / c.kw);
-    }
-  c.col_left = col_left;
-  c.col_right = col_right;
-  c.col_w = col_w;
-  rete_parallel_for (c.height, interpolate_rows, &c);
-  rete_parallel_for (c.height, stretch_rows, &c);
+  float *weight_x = g_new (float, t->kw);
+  for (int k = 0; k < t->kw; k++)
+    weight_x[k] = (float) ((double) k / t->kw); /* np.arange (k) / k */
+  c.weight_x = weight_x;
+  rete_parallel_for (t->height, interpolate_rows, &c);
+  rete_parallel_for (t->height, stretch_rows, &c);
 
-  g_free (col_left);
-  g_free (col_right);
-  g_free (col_w);
-  g_free (c.hist);
-  g_free (c.count);
-  g_free (c.maps);
+  g_free (weight_x);
+  g_free (t->hist);
+  g_free (t->count);
+  g_free (t->maps);
   g_free (mirror_x);
   g_free (mirror_y);
   g_free (lut);
-  g_free (c.bins);
+  g_free (t->bins);
   g_mutex_clear (&c.lock);
   return result;
 }

@@ -1,0 +1,39 @@
+/* clahe_private.h — what clahe.c (the pixel passes) and clahe_tiles.c (histograms, clipping,
+ * mappings) share. Not installed. */
+#ifndef RETE_CLAHE_PRIVATE_H
+#define RETE_CLAHE_PRIVATE_H
+
+#include "rete_preprocess.h"
+
+G_BEGIN_DECLS
+
+#define RETE_CLAHE_GREY_LEVELS 16384 /* skimage's NR_OF_GRAY: the 14-bit working range */
+
+typedef struct {
+  const float *grey;      /* (height, width) values in [0, 1] */
+  const float *fov;       /* (height, width) 0/1, or NULL */
+  int width, height;
+  int kw, kh;             /* tile (contextual region) size, pixels */
+  int nx, ny;             /* tiles across and down: ceil(width / kw), ceil(height / kh) */
+  int n_bins;             /* histogram length (as skimage's bincount minlength) */
+  double clip_limit;      /* normalised, (0, 1] */
+  const int *mirror_x;    /* (nx * kw) column read at each position of the tile grid */
+  const int *mirror_y;    /* (ny * kh) */
+  const guint16 *lut;     /* (65536) 16-bit value -> bin */
+  guint16 *bins;          /* (height, width) bin of each pixel, written by rete_clahe_tile_maps */
+  guint32 *hist;          /* (ny, nx, n_bins) */
+  gint64 *count;          /* (ny, nx) pixels that entered each histogram */
+  float *maps;            /* (ny, nx, n_bins) mapping of each bin, 0..16383 */
+} ReteClaheTiles;
+
+/* Bins of every pixel (into `bins`), histograms of all tiles (read mirrored past the edges,
+ * FOV pixels only when fov != NULL), clipped, turned into mappings; with a FOV, tiles that
+ * saw too few pixels take their neighbours' mappings. */
+G_GNUC_INTERNAL void rete_clahe_tile_maps (ReteClaheTiles *tiles);
+
+/* skimage's clip_histogram (exposed for tests of the redistribution rule). */
+G_GNUC_INTERNAL void rete_clahe_clip_histogram (guint32 *hist, int n, gint64 clip);
+
+G_END_DECLS
+
+#endif /* RETE_CLAHE_PRIVATE_H */

@@ -1,0 +1,238 @@
+/* clahe_tiles.c — the tile part of CLAHE (Zuiderveld, Graphics Gems IV, 1994): one histogram
+ * per contextual region, clipped at the clip limit with the excess redistributed
+ * (Zuiderveld's ClipHistogram as skimage.exposure 0.19 formulates it: even spread, then one
+ * by one along strides), and the region's mapping, its cumulative sum times 16383 / pixels,
+ * truncated (skimage's map_histogram). See clahe.c for the whole method.
+ */
+#include "clahe_private.h"
+
+#include <math.h>
+#include <string.h>
+#ifdef __SSE2__
+#include <emmintrin.h>
+#endif
+
+#define MIN_FOV_FRACTION 16 /* a tile needs 1/16 of its area inside the FOV for a mapping */
+
+/* Zuiderveld's ClipHistogram in skimage's formulation: clip, spread the excess evenly,
+ * then hand out the remainder one by one along strides. */
+void
+rete_clahe_clip_histogram (guint32 *hist, int n, gint64 clip)
+{
+  gint64 n_excess = 0;
+  for (int i = 0; i < n; i++)
+    if (hist[i] > clip)
+      {
+        n_excess += hist[i] - clip;
+        hist[i] = (guint32) clip;
+      }
+  gint64 increment = n_excess / n;
+  gint64 upper = clip - increment;
+  int n_under = 0;
+  for (int i = 0; i < n; i++)
+    {
+      gint64 h = hist[i];
+      if (h < upper)
+        {
+          h += increment;
+          n_excess -= increment;
+        }
+      if (h >= upper && h < clip)
+        {
+          n_excess += h - clip;
+          h = clip;
+        }
+      hist[i] = (guint32) h;
+      n_under += h < clip;
+    }
+  while (n_excess > 0 && n_under > 0)
+    {
+      gint64 previous = n_excess;
+      for (int index = 0; index < n && n_under > 0; index++)
+        {
+          int step = (int) MAX (1, n_under / n_excess);
+          gint64 given = 0;
+          for (int i = index; i < n; i += step)
+            if (hist[i] < clip)
+              {
+                hist[i]++;
+                given++;
+                n_under -= hist[i] == clip;
+              }
+          n_excess -= given;
+          if (n_excess <= 0)
+            break;
+        }
+      if (previous == n_excess)
+        break;
+    }
+}
+
+/* Bins of one row: rint (v × 65535) (as skimage's img_as_uint on float32; the conversion
+ * rounds to nearest, ties to even, as np.rint), then the table that stretches the 16-bit
+ * value over the range and bins it. Values are clamped to [0, 1] first: outside the FOV
+ * anything goes. */
+static void
+bin_row (const float *grey, guint16 *bins, int width, const guint16 *lut)
+{
+  int x = 0;
+#ifdef __SSE2__
+  const __m128 zero = _mm_setzero_ps (), one = _mm_set1_ps (1.0f), scale = _mm_set1_ps (65535.0f);
+  for (; x + 4 <= width; x += 4)
+    {
+      __m128 v = _mm_min_ps (_mm_max_ps (_mm_loadu_ps (grey + x), zero), one);
+      int u[4];
+      _mm_storeu_si128 ((__m128i *) u, _mm_cvtps_epi32 (_mm_mul_ps (v, scale)));
+      bins[x] = lut[u[0]];
+      bins[x + 1] = lut[u[1]];
+      bins[x + 2] = lut[u[2]];
+      bins[x + 3] = lut[u[3]];
+    }
+#endif
+  for (; x < width; x++)
+    {
+      float v = grey[x];
+      v = v > 0.0f ? v : 0.0f;
+      v = v < 1.0f ? v : 1.0f;
+      bins[x] = lut[(int) lrintf (v * 65535.0f)];
+    }
+}
+
+/* One row of tiles: bins, histograms, clipping, mappings. */
+static void
+tile_rows (int first, int last, gpointer data)
+{
+  ReteClaheTiles *c = data;
+  guint16 *mirrored_row = g_new (guint16, c->width);
+  for (int ty = first; ty < last; ty++)
+    {
+      guint32 *row_hist = c->hist + (gsize) ty * c->nx * c->n_bins;
+      memset (row_hist, 0, sizeof (guint32) * c->nx * c->n_bins);
+      gint64 *row_count = c->count + (gsize) ty * c->nx;
+      memset (row_count, 0, sizeof (gint64) * c->nx);
+      for (int r = ty * c->kh; r < (ty + 1) * c->kh; r++)
+        {
+          gsize row = (gsize) c->mirror_y[r] * c->width;
+          /* rows of the image get their bins here; rows read mirrored past the bottom are
+           * binned again into a private row (they may belong to another worker's tiles) */
+          guint16 *b = r < c->height ? c->bins + row : mirrored_row;
+          bin_row (c->grey + row, b, c->width, c->lut);
+          const float *f = c->fov ? c->fov + row : NULL;
+          for (int tx = 0; tx < c->nx; tx++)
+            {
+              guint32 *h = row_hist + (gsize) tx * c->n_bins;
+              int x0 = tx * c->kw, x1 = x0 + c->kw;
+              int n_in = 0;
+              if (f == NULL && x1 <= c->width)
+                {
+                  for (int x = x0; x < x1; x++)
+                    h[b[x]]++;
+                  n_in = c->kw;
+                }
+              else if (x1 <= c->width)
+                for (int x = x0; x < x1; x++)
+                  {
+                    int in = f[x] > 0.5f; /* without a branch: the rim is unpredictable */
+                    h[b[x]] += in;
+                    n_in += in;
+                  }
+              else
+                for (int p = x0; p < x1; p++)
+                  {
+                    int x = c->mirror_x[p];
+                    if (f == NULL || f[x] > 0.5f)
+                      {
+                        h[b[x]]++;
+                        n_in++;
+                      }
+                  }
+              row_count[tx] += n_in;
+            }
+        }
+      for (int tx = 0; tx < c->nx; tx++)
+        {
+          guint32 *h = row_hist + (gsize) tx * c->n_bins;
+          float *map = c->maps + ((gsize) ty * c->nx + tx) * c->n_bins;
+          gint64 n_pixels = row_count[tx];
+          if (n_pixels == 0)
+            continue;
+          gint64 clip = (gint64) MAX (c->clip_limit * (double) n_pixels, 1.0);
+          rete_clahe_clip_histogram (h, c->n_bins, clip);
+          double factor = (RETE_CLAHE_GREY_LEVELS - 1.0) / (double) n_pixels;
+          gint64 sum = 0;
+          for (int k = 0; k < c->n_bins; k++)
+            {
+              sum += h[k];
+              map[k] = (float) floor (MIN ((double) sum * factor, RETE_CLAHE_GREY_LEVELS - 1.0));
+            }
+        }
+    }
+  g_free (mirrored_row);
+}
+
+/* Tiles with too few FOV pixels take the mean mapping of their neighbours that have one,
+ * ring after ring, until every tile has a mapping. */
+static void
+fill_missing_maps (ReteClaheTiles *c)
+{
+  int n_tiles = c->nx * c->ny;
+  gint64 area = (gint64) c->kw * c->kh;
+  gint64 need = MAX (1, area / MIN_FOV_FRACTION);
+  gboolean any = FALSE;
+  for (int t = 0; t < n_tiles; t++)
+    any |= c->count[t] >= need;
+  if (!any) /* a small FOV: every tile that saw a pixel keeps its mapping */
+    need = 1;
+  guint8 *valid = g_new0 (guint8, n_tiles);
+  guint8 *next = g_new0 (guint8, n_tiles);
+  int missing = 0;
+  for (int t = 0; t < n_tiles; t++)
+    {
+      valid[t] = c->count[t] >= need;
+      missing += !valid[t];
+    }
+  while (missing > 0)
+    {
+      memcpy (next, valid, n_tiles);
+      for (int ty = 0; ty < c->ny; ty++)
+        for (int tx = 0; tx < c->nx; tx++)
+          {
+            int t = ty * c->nx + tx;
+            if (valid[t])
+              continue;
+            float *map = c->maps + (gsize) t * c->n_bins;
+            int n = 0;
+            for (int dy = -1; dy <= 1; dy++)
+              for (int dx = -1; dx <= 1; dx++)
+                {
+                  int sy = ty + dy, sx = tx + dx;
+                  if (sy < 0 || sy >= c->ny || sx < 0 || sx >= c->nx || !valid[sy * c->nx + sx])
+                    continue;
+                  const float *source = c->maps + ((gsize) sy * c->nx + sx) * c->n_bins;
+                  if (n == 0)
+                    memset (map, 0, sizeof (float) * c->n_bins);
+                  for (int k = 0; k < c->n_bins; k++)
+                    map[k] += source[k];
+                  n++;
+                }
+            if (n > 0)
+              {
+                for (int k = 0; k < c->n_bins; k++)
+                  map[k] /= n;
+                next[t] = 1;
+                missing--;
+              }
+          }
+      memcpy (valid, next, n_tiles);
+    }
+  g_free (valid);
+  g_free (next);
+}
+
+void
+rete_clahe_tile_maps (ReteClaheTiles *tiles)
+{
+  rete_parallel_for (tiles->ny, tile_rows, tiles);
+  if (tiles->fov != NULL)
+    fill_missing_maps (tiles);
+}
