@@ -114,12 +114,12 @@ rete_filters_finish_map (ReteImage *response, const ReteImage *fov, double low)
       }
   if (!isnan (low))
     lo = (float) low;
-  float scale = hi > lo ? 1.0f / (hi - lo) : 0.0f;
+  float range = hi - lo;
   for (gsize i = 0; i < n; i++)
-    if (fov != NULL && fov->data[i] < 0.5f)
+    if ((fov != NULL && fov->data[i] < 0.5f) || !(range > 0))
       v[i] = 0;
     else
-      v[i] = CLAMP ((v[i] - lo) * scale, 0.0f, 1.0f);
+      v[i] = CLAMP ((v[i] - lo) / range, 0.0f, 1.0f); /* division: the maximum maps to 1 exactly */
 }
 
 /* ---- W x W mean with 'reflect' borders, by running sums (O(1) per pixel per pass) ---- */

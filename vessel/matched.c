@@ -14,8 +14,8 @@
  * Responses: H = max_k (K_k (*) I); for MF-FDOG also D = |F_k* (*) I| at the orientation k*
  * that gave H, its local mean Dbar over a W x W window normalised to [0,1] (Dhat = Dbar / max),
  * and Zhang's rule "vessel where H >= (1 + Dhat) T, T = c mean(H)" (eq. 6-8). The vessel map
- * of MF-FDOG is the score H - c mean(H) Dhat, which crosses c mean(H) exactly where Zhang's
- * rule does: near the step edge of a bright lesion D is high and the score drops.
+ * of MF-FDOG is the score H / (1 + Dhat), which crosses T exactly where Zhang's rule does: near
+ * the step edge of a bright lesion D is high and the score drops by up to half.
  *
  * Halo: floor (hypot (3 sigma, L / 2)) pixels (the kernels' half size), plus (W - 1) / 2 for
  * the mean window of MF-FDOG; borders read as scipy.ndimage's 'reflect'.
@@ -316,6 +316,13 @@ ReteImage *
 rete_vessel_matched (const ReteImage *grey, const ReteImage *fov, const ReteMatchedParams *params,
                      GError **error)
 {
+  return rete_vessel_matched_threshold (grey, fov, params, NULL, error);
+}
+
+ReteImage *
+rete_vessel_matched_threshold (const ReteImage *grey, const ReteImage *fov,
+                               const ReteMatchedParams *params, double *threshold, GError **error)
+{
   ReteMatchedParams defaults;
   if (params == NULL)
     {
@@ -342,25 +349,32 @@ rete_vessel_matched (const ReteImage *grey, const ReteImage *fov, const ReteMatc
     }
   rete_image_free (filled);
   rete_image_free (d);
+  /* T = c mean (H) inside the FOV (Zhang 2010, eq. 8) */
+  gsize n = rete_image_n_pixels (map), n_in = 0;
+  double sum_h = 0;
+  float max_d = 0, max_score = 0;
+  for (gsize i = 0; i < n; i++)
+    if (fov == NULL || fov->data[i] >= 0.5f)
+      {
+        sum_h += map->data[i];
+        if (dbar != NULL)
+          max_d = MAX (max_d, dbar->data[i]);
+        n_in++;
+      }
+  double t = params->fdog_c * sum_h / MAX (n_in, 1);
   if (dbar != NULL)
     {
-      /* Zhang 2010, eq. 6-8: Dhat = Dbar / max Dbar, T = c mean (H) inside the FOV */
-      gsize n = rete_image_n_pixels (map), n_in = 0;
-      double sum_h = 0;
-      float max_d = 0;
-      for (gsize i = 0; i < n; i++)
-        if (fov == NULL || fov->data[i] >= 0.5f)
-          {
-            sum_h += map->data[i];
-            max_d = MAX (max_d, dbar->data[i]);
-            n_in++;
-          }
-      float weight = (float) (params->fdog_c * sum_h / MAX (n_in, 1));
+      /* Zhang 2010, eq. 6-7: Dhat = Dbar / max Dbar; score H / (1 + Dhat) */
       float inv_max = max_d > 0 ? 1 / max_d : 0;
       for (gsize i = 0; i < n; i++)
-        map->data[i] -= weight * dbar->data[i] * inv_max;
+        map->data[i] /= 1 + dbar->data[i] * inv_max;
       rete_image_free (dbar);
     }
+  for (gsize i = 0; i < n; i++)
+    if (fov == NULL || fov->data[i] >= 0.5f)
+      max_score = MAX (max_score, map->data[i]);
   rete_filters_finish_map (map, fov, 0.0);
+  if (threshold != NULL)
+    *threshold = max_score > 0 ? t / max_score : 1.0;
   return map;
 }

@@ -60,9 +60,10 @@ RETE_API ReteImage *rete_vessel_frangi (const ReteImage *grey, const ReteImage *
  * energy (sum of squares 1, so that responses at different sigma compare fairly). Response
  * H = maximum over orientations. The FDOG variant weighs in the local mean of the derivative-
  * of-Gaussian response (Zhang 2010, eq. 6-8) so that the step edges of bright lesions are
- * suppressed: with D = |FDOG response| at H's orientation, Dhat = (W x W mean of D) / its
- * maximum, the map is H - c mean(H) Dhat, which exceeds c mean(H) exactly where Zhang's rule
- * H >= (1 + Dhat) c mean(H) marks a vessel (means over the FOV).
+ * suppressed: with D = |FDOG response| at H's orientation and Dhat = (W x W mean of D) / its
+ * maximum, Zhang's rule marks a vessel where H >= (1 + Dhat) c mean(H) (means over the FOV).
+ * The MF-FDOG map is H / (1 + Dhat), which crosses c mean(H) exactly where that rule does, and
+ * halves the answer at the strongest edges.
  * Halo: floor (hypot (3 sigma, L/2)) pixels, plus (fdog_window - 1) / 2 for MF-FDOG; borders
  * read as scipy.ndimage's 'reflect'. Vessel maps: H (or the FDOG score) clamped at 0 and
  * scaled by its maximum inside the FOV; the surround outside the FOV is first replaced by a
@@ -73,7 +74,8 @@ typedef struct {
   int n_orientations;  /* angles in [0, pi) (default 12: every 15 degrees, as Chaudhuri 1989) */
   gboolean use_fdog;   /* FALSE: Chaudhuri's filter; TRUE: Zhang's MF-FDOG */
   int fdog_window;     /* side of the mean filter applied to the FDOG response (default 31) */
-  double fdog_c;       /* weight c of the normalised FDOG mean in the threshold (default 2.3) */
+  double fdog_c;       /* c of Zhang's threshold T = c mean(H) (default 2.3; 2..3 in Zhang 2010);
+                          only rete_vessel_matched_threshold uses it */
 } ReteMatchedParams;
 
 RETE_API void rete_matched_params_init (ReteMatchedParams *params);
@@ -87,6 +89,12 @@ RETE_API ReteImage *rete_matched_raw (const ReteImage *grey, const ReteMatchedPa
                                       GError **error);
 RETE_API ReteImage *rete_vessel_matched (const ReteImage *grey, const ReteImage *fov,
                                          const ReteMatchedParams *params, GError **error);
+/* The same map, and in *threshold the level of that map that corresponds to the published
+ * threshold T = fdog_c mean(H) (Zhang 2010, eq. 8; for plain MF, Chaudhuri-style T = c mean(H)
+ * with the same c): map >= *threshold reproduces the paper's binary vessel map. */
+RETE_API ReteImage *rete_vessel_matched_threshold (const ReteImage *grey, const ReteImage *fov,
+                                                   const ReteMatchedParams *params,
+                                                   double *threshold, GError **error);
 
 /* ---- Multiscale line detector (Nguyen et al., Pattern Recognition 2013) ----
  * For each line length l = 1, 1 + step, ..., W: R_l = max over 12 orientations of the mean
