@@ -1,19 +1,21 @@
 /* conv.c — 3×3 ("same", zero padding 1) and 1×1 convolutions, forward and backward.
  *
- * The 3×3 convolution is lowered to a matrix product (im2col, Chellapilla, Puri and Simard,
- * "High performance convolutional neural networks for document processing", 2006): the 9·C_in
- * shifted copies of the input for a band of output rows form a (9·C_in, rows·W) matrix, and
- * out_band (C_out, rows·W) = weight (C_out, 9·C_in) × columns + bias, by cblas_sgemm. Bands keep
- * the column matrix within a few megabytes (cache-sized, and no 9× copy of a whole tile).
- * Backward: dweight += dout_band × columnsᵀ; dcolumns = weightᵀ × dout_band, folded back into
- * dinp (col2im). The naive loops stay beside each kernel; tests hold the two together.
+ * The 3×3 convolution is lowered to matrix products (im2col, Chellapilla, Puri and Simard,
+ * "High performance convolutional neural networks for document processing", 2006), with one
+ * saving: only the three horizontal shifts are copied, for a band of output rows plus one row
+ * above and below, as a (3·C_in, (rows+2)·W) matrix; the three vertical shifts are pointer
+ * offsets of W columns into it, so out_band (C_out, rows·W) = bias + Σ_ky weight_ky (C_out,
+ * 3·C_in) × columns[:, ky·W ...] by three cblas_sgemm calls. Bands keep the matrix within a few
+ * megabytes. Backward: dweight_ky += dout_band × shifted columnsᵀ; shifted dcolumns +=
+ * weight_kyᵀ × dout_band, folded back into dinp (col2im). The naive loops stay beside each
+ * kernel; tests hold the two together.
  */
 #include "layers.h"
 
 #include <cblas.h>
 #include <string.h>
 
-/* Output pixels per band: 9·C_in·BAND_PIXELS floats of columns (2.4 MB at C_in = 16). */
+/* Output pixels per band: about 3·C_in·BAND_PIXELS floats of columns (1.6 MB at C_in = 32). */
 #define BAND_PIXELS 4096
 
 static int
@@ -23,70 +25,84 @@ band_rows (int W, int H)
   return MIN (rows, H);
 }
 
-/* columns (9·C_in, rows·W): row (ci·9 + ky·3 + kx), column (y - y0)·W + x holds
- * inp[ci, y + ky - 1, x + kx - 1], or 0 outside the image. */
+/* Column matrix of the three horizontal shifts for output rows [y0, y0 + rows): row
+ * (ci·3 + kx), column r·W + x holds inp[ci, y0 - 1 + r, x + kx - 1] for r in [0, rows + 2), or 0
+ * outside the image. The vertical shift ky is then a pointer offset of ky·W columns: the taps
+ * of row ky are columns [ky·W, ky·W + rows·W). One third of the copying of a full im2col. */
 static void
-im2col3x3 (float *columns, const float *inp /* (C_in, H, W) */, int C_in, int H, int W,
-           int y0, int rows)
+im2col3 (float *columns, const float *inp /* (C_in, H, W) */, int C_in, int H, int W, int y0,
+         int rows)
 {
-  gsize n_cols = (gsize) rows * W;
+  gsize ld = (gsize) (rows + 2) * W;
   for (int ci = 0; ci < C_in; ci++)
-    for (int ky = 0; ky < 3; ky++)
-      for (int kx = 0; kx < 3; kx++)
-        {
-          float *col = columns + ((gsize) ci * 9 + ky * 3 + kx) * n_cols;
-          int dx = kx - 1;
-          for (int r = 0; r < rows; r++)
-            {
-              int y = y0 + r + ky - 1;
-              float *dst = col + (gsize) r * W;
-              if (y < 0 || y >= H)
-                {
-                  memset (dst, 0, sizeof (float) * W);
-                  continue;
-                }
-              const float *src = inp + ((gsize) ci * H + y) * W;
-              if (dx == 0)
-                memcpy (dst, src, sizeof (float) * W);
-              else if (dx < 0)
-                {
-                  dst[0] = 0.0f;
-                  memcpy (dst + 1, src, sizeof (float) * (W - 1));
-                }
-              else
-                {
-                  memcpy (dst, src + 1, sizeof (float) * (W - 1));
-                  dst[W - 1] = 0.0f;
-                }
-            }
-        }
+    for (int kx = 0; kx < 3; kx++)
+      {
+        float *col = columns + ((gsize) ci * 3 + kx) * ld;
+        int dx = kx - 1;
+        for (int r = 0; r < rows + 2; r++)
+          {
+            int y = y0 - 1 + r;
+            float *dst = col + (gsize) r * W;
+            if (y < 0 || y >= H)
+              {
+                memset (dst, 0, sizeof (float) * W);
+                continue;
+              }
+            const float *src = inp + ((gsize) ci * H + y) * W;
+            if (dx == 0)
+              memcpy (dst, src, sizeof (float) * W);
+            else if (dx < 0)
+              {
+                dst[0] = 0.0f;
+                memcpy (dst + 1, src, sizeof (float) * (W - 1));
+              }
+            else
+              {
+                memcpy (dst, src + 1, sizeof (float) * (W - 1));
+                dst[W - 1] = 0.0f;
+              }
+          }
+      }
 }
 
-/* The adjoint of im2col3x3: dinp += the columns folded back. */
+/* The adjoint of im2col3: dinp += the columns folded back (rows outside the image dropped). */
 static void
-col2im3x3 (float *dinp /* (C_in, H, W) */, const float *columns, int C_in, int H, int W,
-           int y0, int rows)
+col2im3 (float *dinp /* (C_in, H, W) */, const float *columns, int C_in, int H, int W, int y0,
+         int rows)
 {
-  gsize n_cols = (gsize) rows * W;
+  gsize ld = (gsize) (rows + 2) * W;
   for (int ci = 0; ci < C_in; ci++)
-    for (int ky = 0; ky < 3; ky++)
-      for (int kx = 0; kx < 3; kx++)
-        {
-          const float *col = columns + ((gsize) ci * 9 + ky * 3 + kx) * n_cols;
-          int dx = kx - 1;
-          for (int r = 0; r < rows; r++)
-            {
-              int y = y0 + r + ky - 1;
-              if (y < 0 || y >= H)
-                continue;
-              const float *src = col + (gsize) r * W;
-              float *dst = dinp + ((gsize) ci * H + y) * W;
-              int x_first = dx < 0 ? 1 : 0;     /* output x whose input x + dx is inside */
-              int x_last = dx > 0 ? W - 1 : W;
-              for (int x = x_first; x < x_last; x++)
-                dst[x + dx] += src[x];
-            }
-        }
+    for (int kx = 0; kx < 3; kx++)
+      {
+        const float *col = columns + ((gsize) ci * 3 + kx) * ld;
+        int dx = kx - 1;
+        int x_first = dx < 0 ? 1 : 0, x_last = dx > 0 ? W - 1 : W;
+        for (int r = 0; r < rows + 2; r++)
+          {
+            int y = y0 - 1 + r;
+            if (y < 0 || y >= H)
+              continue;
+            const float *src = col + (gsize) r * W;
+            float *dst = dinp + ((gsize) ci * H + y) * W;
+            for (int x = x_first; x < x_last; x++)
+              dst[x + dx] += src[x];
+          }
+      }
+}
+
+/* weight (C_out, C_in, 3, 3) -> per_row (3, C_out, C_in·3): the taps of kernel row ky as a
+ * (C_out, 3·C_in) matrix matching the rows of im2col3. */
+static float *
+weights_by_row (const float *weight, int C_in, int C_out)
+{
+  float *w = g_new (float, 9 * C_in * C_out);
+  for (int ky = 0; ky < 3; ky++)
+    for (int co = 0; co < C_out; co++)
+      for (int ci = 0; ci < C_in; ci++)
+        for (int kx = 0; kx < 3; kx++)
+          w[((gsize) ky * C_out + co) * 3 * C_in + ci * 3 + kx]
+            = weight[((co * C_in + ci) * 3 + ky) * 3 + kx];
+  return w;
 }
 
 void
@@ -94,9 +110,10 @@ conv3x3_forward (float *out, const float *inp, const float *weight, const float 
                  int N, int C_in, int C_out, int H, int W)
 {
   int rows = band_rows (W, H);
-  int K = 9 * C_in;
+  int K = 3 * C_in;
   gsize plane = (gsize) H * W;
-  float *columns = g_malloc (sizeof (float) * K * rows * W);
+  float *columns = g_malloc (sizeof (float) * K * (rows + 2) * W);
+  float *w_rows = weights_by_row (weight, C_in, C_out);
   for (int n = 0; n < N; n++)
     {
       const float *inp_n = inp + (gsize) n * C_in * plane;
@@ -110,11 +127,15 @@ conv3x3_forward (float *out, const float *inp, const float *weight, const float 
       for (int y0 = 0; y0 < H; y0 += rows)
         {
           int r = MIN (rows, H - y0);
-          im2col3x3 (columns, inp_n, C_in, H, W, y0, r);
-          cblas_sgemm (CblasRowMajor, CblasNoTrans, CblasNoTrans, C_out, r * W, K,
-                       1.0f, weight, K, columns, r * W, 1.0f, out_n + (gsize) y0 * W, plane);
+          im2col3 (columns, inp_n, C_in, H, W, y0, r);
+          /* out_band (C_out, r·W) += w_row[ky] (C_out, 3·C_in) × columns shifted by ky rows */
+          for (int ky = 0; ky < 3; ky++)
+            cblas_sgemm (CblasRowMajor, CblasNoTrans, CblasNoTrans, C_out, r * W, K, 1.0f,
+                         w_rows + (gsize) ky * C_out * K, K, columns + (gsize) ky * W,
+                         (r + 2) * W, 1.0f, out_n + (gsize) y0 * W, plane);
         }
     }
+  g_free (w_rows);
   g_free (columns);
 }
 
@@ -123,9 +144,13 @@ conv3x3_backward (float *dinp, float *dweight, float *dbias, const float *dout,
                   const float *inp, const float *weight, int N, int C_in, int C_out, int H, int W)
 {
   int rows = band_rows (W, H);
-  int K = 9 * C_in;
+  int K = 3 * C_in;
   gsize plane = (gsize) H * W;
-  float *columns = g_malloc (sizeof (float) * K * rows * W);
+  gsize band = (gsize) K * (rows + 2) * W;
+  float *columns = g_malloc (sizeof (float) * band);
+  float *dcolumns = dinp != NULL ? g_malloc (sizeof (float) * band) : NULL;
+  float *w_rows = weights_by_row (weight, C_in, C_out);
+  float *dw_rows = g_new0 (float, 9 * C_in * C_out);
   for (int n = 0; n < N; n++)
     {
       const float *inp_n = inp + (gsize) n * C_in * plane;
@@ -141,20 +166,36 @@ conv3x3_backward (float *dinp, float *dweight, float *dbias, const float *dout,
       for (int y0 = 0; y0 < H; y0 += rows)
         {
           int r = MIN (rows, H - y0);
+          gsize ld = (gsize) (r + 2) * W;
           const float *dout_band = dout_n + (gsize) y0 * W;
-          im2col3x3 (columns, inp_n, C_in, H, W, y0, r);
-          /* dweight (C_out, K) += dout_band (C_out, r·W) × columnsᵀ (r·W, K) */
-          cblas_sgemm (CblasRowMajor, CblasNoTrans, CblasTrans, C_out, K, r * W,
-                       1.0f, dout_band, plane, columns, r * W, 1.0f, dweight, K);
+          im2col3 (columns, inp_n, C_in, H, W, y0, r);
           if (dinp != NULL)
+            memset (dcolumns, 0, sizeof (float) * K * ld);
+          for (int ky = 0; ky < 3; ky++)
             {
-              /* dcolumns (K, r·W) = weightᵀ (K, C_out) × dout_band (C_out, r·W) */
-              cblas_sgemm (CblasRowMajor, CblasTrans, CblasNoTrans, K, r * W, C_out,
-                           1.0f, weight, K, dout_band, plane, 0.0f, columns, r * W);
-              col2im3x3 (dinp + (gsize) n * C_in * plane, columns, C_in, H, W, y0, r);
+              /* dw_row[ky] (C_out, 3·C_in) += dout_band (C_out, r·W) × shifted columnsᵀ */
+              cblas_sgemm (CblasRowMajor, CblasNoTrans, CblasTrans, C_out, K, r * W, 1.0f,
+                           dout_band, plane, columns + (gsize) ky * W, ld, 1.0f,
+                           dw_rows + (gsize) ky * C_out * K, K);
+              /* shifted dcolumns (3·C_in, r·W) += w_row[ky]ᵀ × dout_band */
+              if (dinp != NULL)
+                cblas_sgemm (CblasRowMajor, CblasTrans, CblasNoTrans, K, r * W, C_out, 1.0f,
+                             w_rows + (gsize) ky * C_out * K, K, dout_band, plane, 1.0f,
+                             dcolumns + (gsize) ky * W, ld);
             }
+          if (dinp != NULL)
+            col2im3 (dinp + (gsize) n * C_in * plane, dcolumns, C_in, H, W, y0, r);
         }
     }
+  for (int ky = 0; ky < 3; ky++)
+    for (int co = 0; co < C_out; co++)
+      for (int ci = 0; ci < C_in; ci++)
+        for (int kx = 0; kx < 3; kx++)
+          dweight[((co * C_in + ci) * 3 + ky) * 3 + kx]
+            += dw_rows[((gsize) ky * C_out + co) * K + ci * 3 + kx];
+  g_free (dw_rows);
+  g_free (w_rows);
+  g_free (dcolumns);
   g_free (columns);
 }
 

@@ -90,9 +90,10 @@ RETE_API double rete_loss_bce_dice (const float *logits, const float *target, co
 /* Model = network + metadata (string key/values), saved as one safetensors file. Keys written
  * by the library: "format_version", "levels", "base_filters", "convs_per_block", "activation"
  * ("relu" or "identity"), "in_channels". Keys read by the vessel-map glue
- * (vessel/rete_learned.h): "channel", "clahe" ("true"/"false"), "clahe_kernel",
- * "clahe_clip_limit", "clahe_bins", "normalisation" ("standardise" or "none"). Others are free:
- * "data", "licence", "split", "seed", "command", "validation_*", "test_*". */
+ * (vessel/rete_learned.h, which documents them): "channel", "clahe" ("true"/"false"),
+ * "clahe_kernel_width", "clahe_kernel_height", "clahe_clip_limit", "clahe_bins",
+ * "normalisation" ("standardise" or "none"). Others are free: "name", "data", "licence",
+ * "split", "seed", "command", "validation_*", "test_*". */
 typedef struct _ReteModel ReteModel;
 
 RETE_API ReteModel *rete_model_new (ReteUnet *net /* takes ownership */);

@@ -15,6 +15,7 @@
 #include "rete_test.h"
 #include "rete_nn.h"
 #include "layers.h"
+#include "rete_learned.h"
 
 static guint64 rng_state = 12345;
 
@@ -703,6 +704,108 @@ test_save_unwritable (void)
   rete_model_free (model);
 }
 
+/* ---- the learned vessel map (vessel/learned.c) ---- */
+
+static ReteImage *
+random_photo (int width, int height, ReteImage **fov)
+{
+  ReteImage *photo = rete_image_new (width, height, 3, NULL);
+  *fov = rete_image_new (width, height, 1, NULL);
+  for (int y = 0; y < height; y++)
+    for (int x = 0; x < width; x++)
+      {
+        double dx = x - width / 2.0, dy = y - height / 2.0;
+        gboolean inside = dx * dx + dy * dy < 0.2 * width * width;
+        (*fov)->data[y * width + x] = inside;
+        for (int c = 0; c < 3; c++)
+          photo->data[((gsize) c * height + y) * width + x] = inside ? (float) (0.2 + 0.6 * rng_uniform ()) : 0.0f;
+      }
+  return photo;
+}
+
+static void
+test_learned_map (void)
+{
+  ReteImage *fov = NULL;
+  ReteImage *photo = random_photo (83, 61, &fov);
+  ReteModel *model = rete_model_new (make_net (3, 4, 2, TRUE, 1, 21));
+  ReteLearnedPreprocess pre;
+  rete_learned_preprocess_init (&pre);
+  pre.clahe.clip_limit = 0.02;
+  rete_learned_preprocess_to_model (&pre, model);
+  GError *error = NULL;
+  ReteImage *map = rete_vessel_learned (photo, fov, model, NULL, NULL, &error);
+  g_assert_no_error (error);
+  /* the same as preparing the input and running the network by hand */
+  float *input = NULL;
+  g_assert_true (rete_learned_prepare_input (photo, fov, model, &input, &error));
+  float *prob = g_new (float, 83 * 61);
+  g_assert_true (rete_model_infer_untiled (model, input, 1, 61, 83, prob, &error));
+  double mean = 0, var = 0, n_in = 0;
+  for (int i = 0; i < 83 * 61; i++)
+    {
+      if (fov->data[i] == 0.0f)
+        {
+          g_assert_cmpfloat (map->data[i], ==, 0.0f);
+          g_assert_cmpfloat (input[i], ==, 0.0f);
+          continue;
+        }
+      g_assert_cmpfloat (fabs (map->data[i] - prob[i]), <=, 1e-6);
+      mean += input[i], var += input[i] * (double) input[i], n_in += 1;
+    }
+  mean /= n_in;
+  var = var / n_in - mean * mean;
+  g_test_message ("network input inside the FOV: mean %.2e, variance %.4f (standardised: 0 and 1)", mean, var);
+  g_assert_cmpfloat (fabs (mean), <=, 1e-4);
+  g_assert_cmpfloat (fabs (var - 1), <=, 1e-3);
+  g_free (input), g_free (prob);
+  rete_image_free (map);
+
+  /* metadata a user could have broken by hand */
+  static const char *bad[][2] = { { "channel", "purple" }, { "clahe", "yes" },
+                                  { "clahe_clip_limit", "2" }, { "clahe_bins", "1" },
+                                  { "normalisation", "z" } };
+  for (gsize i = 0; i < G_N_ELEMENTS (bad); i++)
+    {
+      const char *saved = NULL;
+      g_autofree char *keep = g_strdup (rete_model_get_meta (model, bad[i][0]));
+      saved = keep;
+      rete_model_set_meta (model, bad[i][0], bad[i][1]);
+      g_assert_null (rete_vessel_learned (photo, fov, model, NULL, NULL, &error));
+      g_assert_error (error, RETE_VESSEL_ERROR, RETE_ERROR_FORMAT);
+      g_test_message ("%s", error->message);
+      g_clear_error (&error);
+      rete_model_set_meta (model, bad[i][0], saved);
+    }
+  /* a field of view of another size */
+  ReteImage *small = rete_image_new (40, 61, 1, NULL);
+  g_assert_null (rete_vessel_learned (photo, small, model, NULL, NULL, &error));
+  g_assert_error (error, RETE_VESSEL_ERROR, RETE_ERROR_SIZE_MISMATCH);
+  g_test_message ("%s", error->message);
+  g_clear_error (&error);
+  rete_image_free (small);
+  rete_image_free (photo), rete_image_free (fov);
+  rete_model_free (model);
+}
+
+static void
+test_learned_rgb_model (void)
+{
+  ReteImage *fov = NULL;
+  ReteImage *photo = random_photo (50, 40, &fov);
+  ReteModel *model = rete_model_new (make_net (2, 4, 1, TRUE, 3, 22));
+  GError *error = NULL;
+  float *input = NULL;
+  g_assert_true (rete_learned_prepare_input (photo, NULL, model, &input, &error));
+  g_assert_no_error (error);
+  g_free (input);
+  ReteImage *map = rete_vessel_learned (photo, fov, model, NULL, NULL, &error);
+  g_assert_no_error (error);
+  g_assert_nonnull (map);
+  rete_image_free (map), rete_image_free (photo), rete_image_free (fov);
+  rete_model_free (model);
+}
+
 int
 main (int argc, char **argv)
 {
@@ -722,5 +825,7 @@ main (int argc, char **argv)
     g_test_add_data_func (bad_files[i].path, &bad_files[i], test_bad_file);
   g_test_add_func ("/nn/model/bad/missing-file", test_bad_file_missing);
   g_test_add_func ("/nn/model/bad/unwritable-folder", test_save_unwritable);
+  g_test_add_func ("/nn/learned/map-matches-network-and-fov", test_learned_map);
+  g_test_add_func ("/nn/learned/rgb-model", test_learned_rgb_model);
   return g_test_run ();
 }
