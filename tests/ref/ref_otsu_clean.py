@@ -1,0 +1,58 @@
+"""Reference binary-map figures for tests/test_binary.c, from scikit-image 0.19 and numpy.
+
+usage:
+  ref_otsu_clean.py otsu MAP.npy MASK.npy|-
+      {"threshold": skimage.filters.threshold_otsu(map[mask])}
+  ref_otsu_clean.py fraction MAP.npy MASK.npy|- LEVEL FRACTION
+      {"at": share of map[mask] >= LEVEL, "below": share >= the largest value below LEVEL
+       (null when none)}; LEVEL is the smallest level for FRACTION when at <= FRACTION < below
+  ref_otsu_clean.py clean BINARY.npy MIN_COMPONENT MAX_HOLE OUT.npy [OBJECT_CONNECTIVITY]
+      writes remove_small_holes(remove_small_objects(b, MIN_COMPONENT, connectivity=2),
+      MAX_HOLE, connectivity=1) as float32 0/1 (a 0 skips that step); OBJECT_CONNECTIVITY (default
+      2) exists so that a test can ask for the wrong one and see the check fail
+"""
+import json
+import sys
+import warnings
+
+import numpy as np
+from skimage import filters, morphology
+
+warnings.simplefilter("ignore")
+
+
+def inside(map_path, mask_path):
+    v = np.load(map_path).astype(np.float32)
+    if mask_path != "-":
+        v = v[np.load(mask_path).astype(np.float64) >= 0.5]
+    return v.reshape(-1)
+
+
+def main():
+    mode = sys.argv[1]
+    if mode == "otsu":
+        v = inside(sys.argv[2], sys.argv[3])
+        print(json.dumps({"threshold": float(filters.threshold_otsu(v))}))
+    elif mode == "fraction":
+        v = inside(sys.argv[2], sys.argv[3]).astype(np.float64)
+        level = float(sys.argv[4])
+        lower = v[v < level]
+        out = {"at": float(np.mean(v >= level)),
+               "below": float(np.mean(v >= lower.max())) if lower.size else None}
+        print(json.dumps(out))
+    elif mode == "clean":
+        b = np.load(sys.argv[2]) >= 0.5
+        min_component, max_hole = int(sys.argv[3]), int(sys.argv[4])
+        connectivity = int(sys.argv[6]) if len(sys.argv) > 6 else 2
+        if min_component > 0:
+            b = morphology.remove_small_objects(b, min_size=min_component, connectivity=connectivity)
+        if max_hole > 0:
+            b = morphology.remove_small_holes(b, area_threshold=max_hole, connectivity=1)
+        np.save(sys.argv[5], b.astype(np.float32))
+        print(json.dumps({"vessel": int(b.sum())}))
+    else:
+        sys.exit("unknown mode " + mode)
+
+
+if __name__ == "__main__":
+    main()
