@@ -173,7 +173,7 @@ int
 rete_cmd_measure (int argc, char **argv)
 {
   const char *command = argv[0];
-  double pixel_size = NAN, fov_px = NAN, fov_mm = NAN, min_length = 10, sigma = 4;
+  double pixel_size = NAN, fov_px = NAN, fov_mm = NAN, min_length = 10, sigma = 6;
   int jobs = 0;
   char *output = NULL, *segments = NULL, *fov = NULL, *skeleton_dir = NULL;
   gboolean quiet = FALSE, recursive = FALSE;
@@ -194,7 +194,7 @@ rete_cmd_measure (int argc, char **argv)
     { "min-segment-length", 0, 0, G_OPTION_ARG_DOUBLE, &min_length,
       "Spurs and isolated pieces shorter than this are pruned (default 10; 0 keeps all)", "PX" },
     { "curvature-sigma", 0, 0, G_OPTION_ARG_DOUBLE, &sigma,
-      "Smoothing of the centre line before curvature (default 4)", "PX" },
+      "Smoothing of the centre line before length and curvature (default 6)", "PX" },
     { "skeleton-dir", 0, 0, G_OPTION_ARG_FILENAME, &skeleton_dir,
       "Also write NAME-skeleton.png there (skeleton white, junctions orange, end points cyan)",
       "DIR" },

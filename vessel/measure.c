@@ -27,7 +27,7 @@ rete_measure_params_init (ReteMeasureParams *params)
   memset (params, 0, sizeof *params);
   params->calibration = RETE_CALIBRATION_NONE;
   params->min_segment_length = 10;
-  params->curvature_sigma = 4;
+  params->curvature_sigma = 6;
   params->want_images = TRUE;
 }
 
@@ -287,7 +287,7 @@ rete_measure (const ReteImage *binary, const ReteImage *fov, const ReteMeasurePa
           sum_chord += seg->chord;
           open_length += seg->length;
         }
-      if (isfinite (seg->curvature_index))
+      if (isfinite (seg->curvature_index) && !seg->closed)
         {
           sum_curvature += seg->curvature_index * seg->length;
           curvature_length += seg->length;

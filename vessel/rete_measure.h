@@ -57,7 +57,8 @@ typedef struct {
                                   before the graph is measured (spurs of thinning). 0 = keep all.
                                   Default 10. */
   double curvature_sigma;      /* pixels; Gaussian smoothing of the skeleton path before curvature
-                                  is taken (default 2; >= 0.5) */
+                                  is taken (default 6: the pixel staircase of a
+                                  digital curve still adds curvature at 4; >= 0.5) */
   gboolean want_images;        /* TRUE (default): fill skeleton and point_type below */
   ReteProgressFunc progress;   /* may be NULL; FALSE from it cancels (RETE_ERROR_CANCELLED) */
   gpointer progress_data;
@@ -85,13 +86,13 @@ typedef struct {
   int n_pixels;             /* skeleton pixels on the path, both ends included */
   gboolean start_is_junction, end_is_junction;
   gboolean closed;          /* a loop with no junction or end point */
-  double length;            /* arc length along the 8-connected path (steps of 1 and √2) */
+  double length;            /* arc length of the smoothed centre line (curvature_sigma) */
   double chord;             /* straight distance between its ends (0 for a loop) */
   double calibre_mean;      /* vessel width across the segment, mean over its pixels */
   double calibre_sd;        /* standard deviation of the width along it */
   double tortuosity;        /* arc/chord ratio (>= 1; NaN for loops and chords < 1 px) */
   double curvature_index;   /* total squared curvature per unit length, ∫κ² ds / L, in 1/unit²
-                               (Hart et al. 1999); NaN for segments shorter than 4 px */
+                               (Hart et al. 1999); NaN for paths shorter than 3 curvature_sigma */
 } ReteSegment;
 
 typedef struct {
@@ -118,7 +119,7 @@ typedef struct {
   double mean_segment_length;  /* unit; NaN without segments */
   double mean_calibre;         /* unit; length-weighted over segments; NaN without segments */
   double tortuosity;           /* image arc/chord: Σ length / Σ chord over open segments */
-  double curvature_index;      /* 1/unit²: Σ ∫κ² ds / Σ length over segments with an index */
+  double curvature_index;      /* 1/unit²: Σ ∫κ² ds / Σ length over open segments with an index */
   double fractal_dimension_map;      /* box counting on the vessel map; NaN when empty */
   double fractal_dimension_skeleton; /* box counting on the skeleton; NaN when empty */
   double fractal_r2_map, fractal_r2_skeleton; /* R² of the log–log fits */

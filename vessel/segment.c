@@ -17,6 +17,10 @@
  * path at each end), because at a junction D grows inside the knot and at an end point it
  * falls off the tip.
  *
+ * Length: of the centre line after the smoothing below (the 8-connected chain of 1 and √2 steps
+ * would overestimate curves by about 5%), with σ at most a sixth of the chain's length; the
+ * chain's own length for paths under 3 px. The curvature index needs at least 3σ of path.
+ *
  * Tortuosity: the arc/chord ratio (path length over the distance between its ends), and the
  * total squared curvature per unit length ∫κ² ds / L, both among the measures of Hart,
  * Goldbaum, Côté, Kube and Nelson, "Measurement and classification of retinal vascular
@@ -115,30 +119,35 @@ calibre (ReteSegment *seg, const int *xs, const int *ys, int n, const float *d, 
   seg->calibre_sd = used > 1 ? sqrt (MAX (0, (sum2 - sum * sum / used) / (used - 1))) : 0;
 }
 
-/* The path resampled at unit arc length: m points into rx, ry (allocated). */
+/* The path resampled evenly along its chain length, at a spacing of at most one pixel:
+ * m points into rx, ry (allocated); *spacing gets the spacing. */
 static int
-resample (const int *xs, const int *ys, int n, gboolean closed, double **rx, double **ry)
+resample (const int *xs, const int *ys, int n, gboolean closed, double **rx, double **ry,
+          double *spacing)
 {
   int steps = closed ? n : n - 1;
-  double *along = g_new (double, steps + 1); /* arc length at path point j */
+  double *along = g_new (double, steps + 1); /* chain length at path point j */
   along[0] = 0;
   for (int j = 0; j < steps; j++)
     {
       int next = (j + 1) % n;
       along[j + 1] = along[j] + hypot (xs[next] - xs[j], ys[next] - ys[j]);
     }
+  double total = along[steps];
   /* a ring's last sample would repeat its first */
-  int m = closed ? MAX ((int) floor (along[steps]), 1) : (int) floor (along[steps]) + 1;
+  int m = closed ? MAX ((int) ceil (total), 3) : (int) ceil (total) + 1;
+  *spacing = closed ? total / m : total / (m - 1);
   *rx = g_new (double, m);
   *ry = g_new (double, m);
   int j = 0;
   for (int t = 0; t < m; t++)
     {
-      while (j < steps - 1 && along[j + 1] < t)
+      double target = t * *spacing;
+      while (j < steps - 1 && along[j + 1] < target)
         j++;
       int next = (j + 1) % n;
       double step = along[j + 1] - along[j];
-      double f = step > 0 ? CLAMP ((t - along[j]) / step, 0, 1) : 0;
+      double f = step > 0 ? CLAMP ((target - along[j]) / step, 0, 1) : 0;
       (*rx)[t] = xs[j] + f * (xs[next] - xs[j]);
       (*ry)[t] = ys[j] + f * (ys[next] - ys[j]);
     }
@@ -162,14 +171,19 @@ extended (const double *v, int m, int i, gboolean closed)
 static void
 curvature (ReteSegment *seg, const int *xs, const int *ys, int n, double sigma)
 {
-  if (seg->length < 4 || n < 3)
+  /* short paths are smoothed less (a ring of a few pixels would shrink to a point), and get no
+   * curvature index: it needs a path of at least 3 σ */
+  double chain = seg->length, sigma_used = MIN (sigma, chain / 6);
+  if (n < 3 || sigma_used < 0.5)
     return;
-  double *rx, *ry;
-  int m = resample (xs, ys, n, seg->closed, &rx, &ry);
-  int r = (int) ceil (3 * sigma);
+  gboolean with_index = chain >= 3 * sigma;
+  double *rx, *ry, spacing;
+  int m = resample (xs, ys, n, seg->closed, &rx, &ry, &spacing);
+  double sigma_samples = sigma_used / spacing;
+  int r = (int) ceil (3 * sigma_samples);
   double *kernel = g_new (double, 2 * r + 1), total = 0;
   for (int t = -r; t <= r; t++)
-    total += kernel[t + r] = exp (-0.5 * t * t / (sigma * sigma));
+    total += kernel[t + r] = exp (-0.5 * t * t / (sigma_samples * sigma_samples));
   double *sx = g_new (double, m + 2), *sy = g_new (double, m + 2);
   for (int i = -1; i <= m; i++)
     {
@@ -182,6 +196,15 @@ curvature (ReteSegment *seg, const int *xs, const int *ys, int n, double sigma)
       sx[i + 1] = ax / total;
       sy[i + 1] = ay / total;
     }
+  /* length of the smoothed centre line: the chain of 1 and √2 steps overestimates the length
+   * of a digital curve by up to 8% (about 5% on average over directions; Kulpa 1977, from
+   * memory), the smoothed line does not, and keeps straight lines exact */
+  double length = 0;
+  for (int i = 1; i < m; i++)
+    length += hypot (sx[i + 1] - sx[i], sy[i + 1] - sy[i]);
+  if (seg->closed)
+    length += hypot (sx[1] - sx[m], sy[1] - sy[m]);
+  seg->length = length;
   double integral = 0;
   for (int i = 1; i <= m; i++)
     {
@@ -195,7 +218,8 @@ curvature (ReteSegment *seg, const int *xs, const int *ys, int n, double sigma)
       double kappa = (dx * ddy - dy * ddx) / (speed * speed * speed);
       integral += kappa * kappa * speed;
     }
-  seg->curvature_index = integral / seg->length;
+  if (with_index)
+    seg->curvature_index = integral / seg->length;
   g_free (kernel);
   g_free (sx);
   g_free (sy);
@@ -208,7 +232,7 @@ rete_segment_figures (ReteSegment *seg, const int *xs, const int *ys, int n,
                       const float *distance, int width, int height, double curvature_sigma)
 {
   seg->chord = seg->closed ? 0 : hypot (xs[n - 1] - xs[0], ys[n - 1] - ys[0]);
+  curvature (seg, xs, ys, n, curvature_sigma); /* also the smoothed length */
   seg->tortuosity = (!seg->closed && seg->chord >= 1) ? seg->length / seg->chord : NAN;
   calibre (seg, xs, ys, n, distance, width, height);
-  curvature (seg, xs, ys, n, curvature_sigma);
 }
