@@ -70,35 +70,45 @@ rete_mask_dice (const ReteImage *a, const ReteImage *b, GError **error)
   return na + nb == 0 ? 1.0 : 2.0 * both / (double) (na + nb);
 }
 
-/* Box mean of radius r along rows then columns (edges: mean of the part inside). */
+/* Box mean of radius r (edges: the mean of the part inside), rows then columns; the column
+ * pass slides a window of row sums down the image so that it reads rows, not columns. */
 static void
 box_mean (float *image, int width, int height, int r)
 {
-  int n = MAX (width, height);
-  double *line = g_new (double, n + 1);
-  float *copy = g_new (float, n);
-  for (int pass = 0; pass < 2; pass++)
+  double *line = g_new (double, width + 1);
+  for (int y = 0; y < height; y++)
     {
-      int len = pass == 0 ? width : height, count = pass == 0 ? height : width;
-      gsize step = pass == 0 ? 1 : (gsize) width, stride = pass == 0 ? (gsize) width : 1;
-      for (int k = 0; k < count; k++)
+      float *p = image + (gsize) y * width;
+      line[0] = 0;
+      for (int x = 0; x < width; x++)
+        line[x + 1] = line[x] + p[x];
+      for (int x = 0; x < width; x++)
         {
-          float *p = image + k * stride;
-          line[0] = 0;
-          for (int i = 0; i < len; i++)
-            {
-              copy[i] = p[i * step];
-              line[i + 1] = line[i] + copy[i];
-            }
-          for (int i = 0; i < len; i++)
-            {
-              int a = MAX (0, i - r), b = MIN (len, i + r + 1);
-              p[i * step] = (float) ((line[b] - line[a]) / (b - a));
-            }
+          int a = MAX (0, x - r), b = MIN (width, x + r + 1);
+          p[x] = (float) ((line[b] - line[a]) / (b - a));
         }
     }
   g_free (line);
-  g_free (copy);
+  double *sum = g_new0 (double, width);
+  float *source = g_memdup2 (image, sizeof (float) * width * height);
+  for (int y = 0; y < MIN (r, height); y++)
+    for (int x = 0; x < width; x++)
+      sum[x] += source[(gsize) y * width + x];
+  for (int y = 0; y < height; y++)
+    {
+      if (y + r < height)
+        for (int x = 0; x < width; x++)
+          sum[x] += source[(gsize) (y + r) * width + x];
+      if (y - r - 1 >= 0)
+        for (int x = 0; x < width; x++)
+          sum[x] -= source[(gsize) (y - r - 1) * width + x];
+      int count = MIN (height, y + r + 1) - MAX (0, y - r);
+      float *p = image + (gsize) y * width;
+      for (int x = 0; x < width; x++)
+        p[x] = (float) (sum[x] / count);
+    }
+  g_free (sum);
+  g_free (source);
 }
 
 /* Otsu's threshold (between-class variance maximum) on a histogram: the first bin of the
@@ -148,46 +158,67 @@ median_bin (const gsize *hist, int first, int last)
   return last - 1;
 }
 
+/* Floods the 4-connected region of `seed` in mask (0/1 bytes), marking it in `seen`, a
+ * span of a row at a time (scanline fill: one stack entry per span, not per pixel);
+ * returns its size. `stack` holds up to width × height entries. */
+static gsize
+flood (const guint8 *mask, guint8 *seen, guint32 *stack, int width, int height, gsize seed)
+{
+  gsize top = 0, size = 0;
+  stack[top++] = (guint32) seed;
+  while (top > 0)
+    {
+      gsize i = stack[--top];
+      if (seen[i])
+        continue;
+      int y = (int) (i / width), x = (int) (i % width), left = x, right = x;
+      const guint8 *m = mask + (gsize) y * width;
+      guint8 *s = seen + (gsize) y * width;
+      while (left > 0 && m[left - 1] && !s[left - 1])
+        left--;
+      while (right < width - 1 && m[right + 1] && !s[right + 1])
+        right++;
+      memset (s + left, 1, right - left + 1);
+      size += right - left + 1;
+      for (int dy = -1; dy <= 1; dy += 2)
+        {
+          int ny = y + dy;
+          if (ny < 0 || ny >= height)
+            continue;
+          const guint8 *nm = mask + (gsize) ny * width;
+          const guint8 *ns = seen + (gsize) ny * width;
+          for (int nx = left; nx <= right; nx++)
+            if (nm[nx] && !ns[nx] && (nx == left || !nm[nx - 1] || ns[nx - 1]))
+              stack[top++] = (guint32) ((gsize) ny * width + nx); /* first pixel of a run */
+        }
+    }
+  return size;
+}
+
 /* Keeps the largest 4-connected region of mask (0/1 bytes); returns its size. */
 static gsize
 keep_largest_region (guint8 *mask, int width, int height)
 {
-  gsize n = (gsize) width * height;
-  gint32 *label = g_new0 (gint32, n);
-  gsize *stack = g_new (gsize, n);
-  gsize best_size = 0;
-  gint32 best_label = 0, next_label = 0;
+  gsize n = (gsize) width * height, best_size = 0, best_seed = 0;
+  guint8 *seen = g_new0 (guint8, n);
+  /* pushes: at most one per run start from the row above and one from below, and a row has
+   * at most (width + 1) / 2 runs; indices fit 32 bits (RETE_MAX_PIXELS = 2^28) */
+  guint32 *stack = g_new (guint32, n + height + 1);
   for (gsize seed = 0; seed < n; seed++)
-    {
-      if (!mask[seed] || label[seed])
-        continue;
-      gint32 id = ++next_label;
-      gsize top = 0, size = 0;
-      stack[top++] = seed;
-      label[seed] = id;
-      while (top > 0)
-        {
-          gsize i = stack[--top];
-          size++;
-          int x = (int) (i % width), y = (int) (i / width);
-          gsize around[4] = { i - 1, i + 1, i - width, i + width };
-          gboolean ok[4] = { x > 0, x < width - 1, y > 0, y < height - 1 };
-          for (int k = 0; k < 4; k++)
-            if (ok[k] && mask[around[k]] && !label[around[k]])
-              {
-                label[around[k]] = id;
-                stack[top++] = around[k];
-              }
-        }
-      if (size > best_size)
-        {
-          best_size = size;
-          best_label = id;
-        }
-    }
-  for (gsize i = 0; i < n; i++)
-    mask[i] = label[i] == best_label && best_label != 0;
-  g_free (label);
+    if (mask[seed] && !seen[seed])
+      {
+        gsize size = flood (mask, seen, stack, width, height, seed);
+        if (size > best_size)
+          {
+            best_size = size;
+            best_seed = seed;
+          }
+      }
+  memset (seen, 0, n);
+  if (best_size > 0)
+    flood (mask, seen, stack, width, height, best_seed);
+  memcpy (mask, seen, n);
+  g_free (seen);
   g_free (stack);
   return best_size;
 }

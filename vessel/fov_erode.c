@@ -57,26 +57,42 @@ distance_1d (const gint64 *f, gint64 *d, int n, int *v, double *z)
     }
 }
 
+/* First dimension: on a column the transform of a 0/FAR function is just the squared
+ * distance to the nearest outside pixel of the column, found by one pass down and one up
+ * (Felzenszwalb & Huttenlocher 2012, §2.1 remark on binary images). The passes run along
+ * rows, over the band of columns [first, last), so that memory is read in order. */
 static void
 column_pass (int first, int last, gpointer data)
 {
   Erode *e = data;
-  int h = e->height;
-  gint64 *f = g_new (gint64, h), *d = g_new (gint64, h);
-  int *v = g_new (int, h);
-  double *z = g_new (double, h + 1);
-  for (int x = first; x < last; x++)
+  int w = e->width, h = e->height, n = last - first;
+  const gint64 none = (gint64) h + 1; /* farther than any pixel of the column */
+  gint64 *run = g_new (gint64, n);
+  for (int x = 0; x < n; x++)
+    run[x] = none;
+  for (int y = 0; y < h; y++)
     {
-      for (int y = 0; y < h; y++)
-        f[y] = e->mask[(gsize) y * e->width + x] > 0.5f ? FAR : 0;
-      distance_1d (f, d, h, v, z);
-      for (int y = 0; y < h; y++)
-        e->dist[(gsize) y * e->width + x] = MIN (d[y], FAR);
+      const float *m = e->mask + (gsize) y * w + first;
+      gint64 *d = e->dist + (gsize) y * w + first;
+      for (int x = 0; x < n; x++)
+        {
+          run[x] = m[x] > 0.5f ? MIN (run[x] + 1, none) : 0;
+          d[x] = run[x];
+        }
     }
-  g_free (f);
-  g_free (d);
-  g_free (v);
-  g_free (z);
+  for (int x = 0; x < n; x++)
+    run[x] = none;
+  for (int y = h - 1; y >= 0; y--)
+    {
+      gint64 *d = e->dist + (gsize) y * w + first;
+      for (int x = 0; x < n; x++)
+        {
+          run[x] = d[x] == 0 ? 0 : MIN (run[x] + 1, none);
+          gint64 g = MIN (d[x], run[x]);
+          d[x] = g >= none ? FAR : g * g;
+        }
+    }
+  g_free (run);
 }
 
 static void
