@@ -31,8 +31,8 @@
 void
 rete_matched_params_init (ReteMatchedParams *params)
 {
-  params->sigma = 1.5;
-  params->length = 9;
+  params->sigma = 4;   /* tuned on CHASE_DB1 (999x960): tests/CHASE-CLASSICAL.md */
+  params->length = 21;
   params->n_orientations = 12;
   params->use_fdog = FALSE;
   params->fdog_window = 31;
