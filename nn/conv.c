@@ -105,9 +105,10 @@ weights_by_row (const float *weight, int C_in, int C_out)
   return w;
 }
 
+/* The forward pass, with the activation applied band by band while the band is in cache. */
 void
-conv3x3_forward (float *out, const float *inp, const float *weight, const float *bias,
-                 int N, int C_in, int C_out, int H, int W)
+conv3x3_forward_act (float *out, const float *inp, const float *weight, const float *bias,
+                     int N, int C_in, int C_out, int H, int W, gboolean relu)
 {
   int rows = band_rows (W, H);
   int K = 3 * C_in;
@@ -118,25 +119,37 @@ conv3x3_forward (float *out, const float *inp, const float *weight, const float 
     {
       const float *inp_n = inp + (gsize) n * C_in * plane;
       float *out_n = out + (gsize) n * C_out * plane;
-      for (int co = 0; co < C_out; co++)
-        {
-          float *o = out_n + co * plane;
-          for (gsize i = 0; i < plane; i++)
-            o[i] = bias[co];
-        }
       for (int y0 = 0; y0 < H; y0 += rows)
         {
           int r = MIN (rows, H - y0);
+          gsize nb = (gsize) r * W;
           im2col3 (columns, inp_n, C_in, H, W, y0, r);
-          /* out_band (C_out, r·W) += w_row[ky] (C_out, 3·C_in) × columns shifted by ky rows */
+          /* out_band (C_out, r·W) = Σ_ky w_row[ky] (C_out, 3·C_in) × columns shifted by ky rows */
           for (int ky = 0; ky < 3; ky++)
             cblas_sgemm (CblasRowMajor, CblasNoTrans, CblasNoTrans, C_out, r * W, K, 1.0f,
                          w_rows + (gsize) ky * C_out * K, K, columns + (gsize) ky * W,
-                         (r + 2) * W, 1.0f, out_n + (gsize) y0 * W, plane);
+                         (r + 2) * W, ky == 0 ? 0.0f : 1.0f, out_n + (gsize) y0 * W, plane);
+          for (int co = 0; co < C_out; co++)
+            {
+              float *o = out_n + co * plane + (gsize) y0 * W, b = bias[co];
+              if (relu)
+                for (gsize i = 0; i < nb; i++)
+                  o[i] = o[i] + b > 0.0f ? o[i] + b : 0.0f;
+              else
+                for (gsize i = 0; i < nb; i++)
+                  o[i] += b;
+            }
         }
     }
   g_free (w_rows);
   g_free (columns);
+}
+
+void
+conv3x3_forward (float *out, const float *inp, const float *weight, const float *bias,
+                 int N, int C_in, int C_out, int H, int W)
+{
+  conv3x3_forward_act (out, inp, weight, bias, N, C_in, C_out, H, W, FALSE);
 }
 
 void

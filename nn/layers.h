@@ -26,6 +26,11 @@ RETE_API void conv3x3_forward (float *out,          /* (N, C_out, H, W) */
                       const float *weight, /* (C_out, C_in, 3, 3) */
                       const float *bias,   /* (C_out) */
                       int N, int C_in, int C_out, int H, int W);
+/* The same followed by ReLU when relu is TRUE (fused: applied to each band of rows while it is
+ * in cache); relu FALSE is conv3x3_forward. */
+RETE_API void conv3x3_forward_act (float *out, const float *inp, const float *weight,
+                                   const float *bias, int N, int C_in, int C_out, int H, int W,
+                                   gboolean relu);
 RETE_API void conv3x3_backward (float *dinp,         /* (N, C_in, H, W), may be NULL (first layer) */
                        float *dweight,      /* (C_out, C_in, 3, 3) */
                        float *dbias,        /* (C_out) */

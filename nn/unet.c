@@ -324,7 +324,6 @@ unet_forward_one (const ReteUnet *net, const UnetActivations *a, int H, int W)
   for (int l = 0; l < L; l++)
     {
       int Hl = H >> l, Wl = W >> l, C = F << l;
-      gsize S = (gsize) Hl * Wl;
       int c_in = l == 0 ? cf->in_channels : C / 2;
       if (l > 0)
         {
@@ -334,10 +333,8 @@ unet_forward_one (const ReteUnet *net, const UnetActivations *a, int H, int W)
       for (int j = 0; j < k; j++)
         {
           int w = net->enc_w[l][j];
-          conv3x3_forward (a->enc[l][j], x, param (net, w), param (net, w + 1), 1, j == 0 ? c_in : C,
-                           C, Hl, Wl);
-          if (cf->activation)
-            relu_forward (a->enc[l][j], a->enc[l][j], C * S);
+          conv3x3_forward_act (a->enc[l][j], x, param (net, w), param (net, w + 1), 1,
+                               j == 0 ? c_in : C, C, Hl, Wl, cf->activation);
           x = a->enc[l][j];
         }
     }
@@ -352,10 +349,8 @@ unet_forward_one (const ReteUnet *net, const UnetActivations *a, int H, int W)
       for (int j = 0; j < k; j++)
         {
           w = net->dec_w[l][j];
-          conv3x3_forward (a->dec[l][j], x, param (net, w), param (net, w + 1), 1,
-                           j == 0 ? 2 * C : C, C, Hl, Wl);
-          if (cf->activation)
-            relu_forward (a->dec[l][j], a->dec[l][j], C * S);
+          conv3x3_forward_act (a->dec[l][j], x, param (net, w), param (net, w + 1), 1,
+                               j == 0 ? 2 * C : C, C, Hl, Wl, cf->activation);
           x = a->dec[l][j];
         }
     }

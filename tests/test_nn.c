@@ -233,6 +233,18 @@ test_layer (gconstpointer data)
                   c->path, fwd);
   g_assert_cmpfloat (fwd, <=, 1e-5);
 
+  if (c->kind == LAYER_CONV3) /* the fused convolution + ReLU against naive + ReLU */
+    {
+      float *fused = g_new (float, s.n_out);
+      conv3x3_forward_act (fused, inp, w, b, c->N, c->C_in, c->C_out, c->H, c->W, TRUE);
+      relu_forward (out, out_naive, s.n_out);
+      double d = relative_diff (fused, out, s.n_out);
+      g_test_message ("%s: fused convolution + ReLU vs naive, largest relative difference %.2e "
+                      "(tolerance 1e-5)", c->path, d);
+      g_assert_cmpfloat (d, <=, 1e-5);
+      g_free (fused);
+    }
+
   /* backward: optimised against naive, naive against finite differences; and it accumulates */
   float *dinp[2], *dw[2], *db[2];
   for (int k = 0; k < 2; k++)
