@@ -13,29 +13,7 @@
 #include "rete_agreement.h"
 #include "rete_fov.h"
 #include "rete_preprocess.h"
-#if __has_include("rete_learned.h")
 #include "rete_learned.h"
-#else
-/* Until vessel/rete_learned.h is in: the preprocessing the model metadata declares (channel,
- * CLAHE inside the FOV, standardisation inside the FOV), built from rete_preprocess.h. */
-static ReteImage *
-rete_learned_prepare_input (const ReteImage *photo, const ReteImage *fov, const ReteModel *model,
-                            GError **error)
-{
-  ReteChannel channel = RETE_CHANNEL_GREEN;
-  const char *name = rete_model_get_meta (model, "channel");
-  if (name != NULL && !rete_channel_from_name (name, &channel, error))
-    return NULL;
-  ReteClaheParams clahe;
-  rete_clahe_params_init (&clahe);
-  gboolean use_clahe = g_strcmp0 (rete_model_get_meta (model, "clahe"), "false") != 0;
-  ReteImage *grey = rete_preprocess (photo, fov, channel, use_clahe ? &clahe : NULL, error);
-  if (grey != NULL && g_strcmp0 (rete_model_get_meta (model, "normalisation"), "none") != 0
-      && !rete_standardise (grey, fov, error))
-    g_clear_pointer (&grey, rete_image_free);
-  return grey;
-}
-#endif
 
 /* ---- data ---------------------------------------------------------------------------------- */
 
@@ -61,9 +39,12 @@ rete_train_pair_free (ReteTrainPair *pair)
 ReteModel *
 rete_train_preprocessing_model (const ReteTrainDataOptions *options, GError **error)
 {
-  ReteChannel channel = RETE_CHANNEL_GREEN;
-  if (options->channel != NULL && !rete_channel_from_name (options->channel, &channel, error))
+  ReteLearnedPreprocess pre;
+  rete_learned_preprocess_init (&pre);
+  if (options->channel != NULL && !rete_channel_from_name (options->channel, &pre.channel, error))
     return NULL;
+  pre.use_clahe = !options->no_clahe;
+  /* the smallest network: it only carries the metadata until the real one is trained */
   ReteUnetConfig arch;
   rete_unet_config_init (&arch);
   arch.levels = 1;
@@ -73,25 +54,16 @@ rete_train_preprocessing_model (const ReteTrainDataOptions *options, GError **er
   if (net == NULL)
     return NULL;
   ReteModel *model = rete_model_new (net);
-  ReteClaheParams clahe;
-  rete_clahe_params_init (&clahe);
-  char buf[G_ASCII_DTOSTR_BUF_SIZE];
-  rete_model_set_meta (model, "channel", rete_channel_name (channel));
-  rete_model_set_meta (model, "clahe", options->no_clahe ? "false" : "true");
-  g_snprintf (buf, sizeof buf, "%d", clahe.kernel_width);
-  rete_model_set_meta (model, "clahe_kernel", buf);
-  rete_model_set_meta (model, "clahe_clip_limit", g_ascii_dtostr (buf, sizeof buf, clahe.clip_limit));
-  g_snprintf (buf, sizeof buf, "%d", clahe.n_bins);
-  rete_model_set_meta (model, "clahe_bins", buf);
-  rete_model_set_meta (model, "normalisation", "standardise");
+  rete_learned_preprocess_to_model (&pre, model);
   return model;
 }
 
 char **
 rete_train_preprocessing_metadata (const ReteModel *model)
 {
-  static const char *const keys[] = { "channel", "clahe", "clahe_kernel", "clahe_clip_limit",
-                                      "clahe_bins", "normalisation" };
+  static const char *const keys[] = { "channel", "clahe", "clahe_kernel_width",
+                                      "clahe_kernel_height", "clahe_clip_limit", "clahe_bins",
+                                      "normalisation" };
   GPtrArray *out = g_ptr_array_new ();
   for (gsize i = 0; i < G_N_ELEMENTS (keys); i++)
     {
@@ -162,7 +134,14 @@ load_pair (const ReteCliInput *input, const ReteTrainDataOptions *options,
     }
   if (fov == NULL)
     return NULL;
-  ReteImage *prepared = rete_learned_prepare_input (photo, fov, model, error);
+  float *data = NULL;
+  if (!rete_learned_prepare_input (photo, fov, model, &data, error))
+    return NULL;
+  int channels = rete_unet_config (rete_model_net (model))->in_channels;
+  ReteImage *prepared = rete_image_new (photo->width, photo->height, channels, error);
+  if (prepared != NULL)
+    memcpy (prepared->data, data, sizeof (float) * rete_image_n_pixels (photo) * channels);
+  g_free (data);
   if (prepared == NULL)
     return NULL;
   ReteTrainPair *pair = g_new0 (ReteTrainPair, 1);

@@ -1,16 +1,19 @@
 /* test_train.c — training of the U-Net (nn/rete_train.h): the validation AUC against
  * scikit-learn, AdamW against PyTorch, patches and augmentation, determinism, resuming,
- * fine-tuning, restarts of dead networks, the tiny preset over several seeds, bad input.
+ * fine-tuning, restarts of dead networks, the tiny preset over several seeds, bad input, and
+ * `rete train` on files (sizes that do not match, grey annotations, resume, empty folders).
  *
  * Synthetic data: dark curved stripes ("vessels") on an unevenly lit disc with noise, drawn
  * here, so the checks need no photographs; standardised inside the disc as the prepared
  * input of a photograph is.
  */
+#include "rete_io.h"
 #include "rete_test.h"
 #include "rete_train.h"
 
 #include <math.h>
 #include <string.h>
+#include <sys/wait.h>
 #include <glib/gstdio.h>
 
 /* ---- synthetic pairs --------------------------------------------------------------------- */
@@ -755,6 +758,146 @@ test_bad_input (void)
   pair_clear (&small);
 }
 
+/* ---- the command: rete train on files ----------------------------------------------------- */
+
+typedef struct {
+  int status;
+  char *out, *err;
+} CliRun;
+
+static void
+cli_run_free (CliRun *run)
+{
+  g_free (run->out);
+  g_free (run->err);
+  g_free (run);
+}
+
+/* Runs the built `rete` (RETE_BUILD_DIR/cli/rete) with NULL-terminated arguments. */
+static CliRun *
+rete_run (const char *first, ...)
+{
+  const char *build = g_getenv ("RETE_BUILD_DIR");
+  g_autofree char *binary = g_build_filename (build ? build : ".", "cli", "rete", NULL);
+  GPtrArray *argv = g_ptr_array_new ();
+  g_ptr_array_add (argv, binary);
+  va_list args;
+  va_start (args, first);
+  for (const char *a = first; a != NULL; a = va_arg (args, const char *))
+    g_ptr_array_add (argv, (char *) a);
+  va_end (args);
+  g_ptr_array_add (argv, NULL);
+  CliRun *run = g_new0 (CliRun, 1);
+  int wait_status = 0;
+  GError *error = NULL;
+  gboolean ok = g_spawn_sync (NULL, (char **) argv->pdata, NULL, G_SPAWN_DEFAULT, NULL, NULL,
+                              &run->out, &run->err, &wait_status, &error);
+  g_assert_no_error (error);
+  g_assert_true (ok);
+  run->status = WIFEXITED (wait_status) ? WEXITSTATUS (wait_status) : 128;
+  g_autofree char *line = g_strjoinv (" ", (char **) argv->pdata);
+  g_test_message ("$ %s -> exit %d\n%s%s", line, run->status, run->out, run->err);
+  g_ptr_array_free (argv, TRUE);
+  return run;
+}
+
+/* A folder of photographs (grey synthetic discs saved as RGB PNG) and one of annotations. */
+static void
+write_pair_files (const char *photos, const char *annotations, const char *name, int size,
+                  guint64 seed, gboolean grey_annotation, int annotation_size)
+{
+  Pair p;
+  pair_make (&p, size, size, seed);
+  GError *error = NULL;
+  g_autoptr (ReteImage) photo = rete_image_new (size, size, 3, &error);
+  for (gsize i = 0; i < (gsize) size * size; i++)
+    for (int c = 0; c < 3; c++) /* back to [0,1]: the standardised values, rescaled */
+      photo->data[c * (gsize) size * size + i] = CLAMP (0.5f + 0.15f * p.input[i], 0.0f, 1.0f);
+  g_autoptr (ReteImage) ann = rete_image_new (annotation_size, annotation_size, 1, &error);
+  for (int y = 0; y < annotation_size; y++)
+    for (int x = 0; x < annotation_size; x++)
+      {
+        float t = (x < size && y < size) ? p.target[y * size + x] : 0.0f;
+        ann->data[y * annotation_size + x] = grey_annotation && t > 0 ? 0.8f : t;
+      }
+  g_autofree char *pp = g_strdup_printf ("%s/%s.png", photos, name);
+  g_autofree char *pa = g_strdup_printf ("%s/%s.png", annotations, name);
+  g_assert_true (rete_io_save (photo, pp, NULL, &error));
+  g_assert_true (rete_io_save (ann, pa, NULL, &error));
+  g_assert_no_error (error);
+  pair_clear (&p);
+}
+
+static void
+test_cli_train (void)
+{
+  rete_io_init ();
+  g_autofree char *root = rete_test_tmp_path ("cli");
+  g_autofree char *photos = g_build_filename (root, "photos", NULL);
+  g_autofree char *annotations = g_build_filename (root, "annotations", NULL);
+  g_autofree char *empty = g_build_filename (root, "empty", NULL);
+  g_autofree char *model = g_build_filename (root, "m.safetensors", NULL);
+  g_autofree char *log = g_build_filename (root, "m.csv", NULL);
+  g_mkdir_with_parents (photos, 0755);
+  g_mkdir_with_parents (annotations, 0755);
+  g_mkdir_with_parents (empty, 0755);
+  write_pair_files (photos, annotations, "a", 80, 1, FALSE, 80);
+  write_pair_files (photos, annotations, "b", 80, 2, TRUE, 80);  /* grey annotation */
+  write_pair_files (photos, annotations, "c", 80, 3, FALSE, 80);
+
+  /* non-binary annotation: thresholded at half with a warning; the model is written with the
+   * preprocessing and the validation figures in its metadata */
+  CliRun *r = rete_run ("train", "--annotations", annotations, "--validate", "c", "--size", "tiny",
+                        "--steps", "12", "--batch", "2", "--patch", "32", "--validate-every", "6",
+                        "--output", model, "--quiet", photos, NULL);
+  g_assert_cmpint (r->status, ==, 0);
+  g_assert_nonnull (strstr (r->err, "is not binary"));
+  g_assert_nonnull (strstr (r->out, "validation (1 photographs"));
+  cli_run_free (r);
+  GError *error = NULL;
+  ReteModel *m = rete_model_load (model, &error);
+  g_assert_no_error (error);
+  g_assert_cmpstr (rete_model_get_meta (m, "channel"), ==, "green");
+  g_assert_cmpstr (rete_model_get_meta (m, "normalisation"), ==, "standardise");
+  g_assert_cmpstr (rete_model_get_meta (m, "validation_photographs"), ==, "c");
+  g_assert_nonnull (rete_model_get_meta (m, "validation_sensitivity"));
+  rete_model_free (m);
+
+  /* resuming a finished run with more steps goes on from its checkpoint */
+  r = rete_run ("train", "--annotations", annotations, "--validate", "c", "--size", "tiny",
+                "--steps", "18", "--batch", "2", "--patch", "32", "--validate-every", "6",
+                "--output", model, "--quiet", "--resume", photos, NULL);
+  g_assert_cmpint (r->status, ==, 0);
+  cli_run_free (r);
+  char *text = NULL;
+  g_assert_true (g_file_get_contents (log, &text, NULL, NULL));
+  g_assert_nonnull (strstr (text, "resumed at step 12"));
+  g_assert_nonnull (strstr (text, "\n18,"));
+  g_free (text);
+
+  /* an annotation of another size than its photograph: an error naming both sizes */
+  write_pair_files (photos, annotations, "d", 80, 4, FALSE, 64);
+  r = rete_run ("train", "--annotations", annotations, "--size", "tiny", "--steps", "2",
+                "--output", model, photos, NULL);
+  g_assert_cmpint (r->status, ==, 1);
+  g_assert_nonnull (strstr (r->err, "is 64×64 but photograph"));
+  cli_run_free (r);
+
+  /* an empty folder of photographs; an unknown validation name; no --output */
+  r = rete_run ("train", "--annotations", annotations, "--output", model, empty, NULL);
+  g_assert_cmpint (r->status, !=, 0);
+  cli_run_free (r);
+  g_autofree char *one = g_build_filename (photos, "a.png", NULL);
+  r = rete_run ("train", "--annotations", annotations, "--validate", "zzz", "--output", model,
+                one, NULL);
+  g_assert_cmpint (r->status, ==, 1);
+  g_assert_nonnull (strstr (r->err, "'zzz' is not among the photographs"));
+  cli_run_free (r);
+  r = rete_run ("train", "--annotations", annotations, one, NULL);
+  g_assert_cmpint (r->status, ==, 2);
+  cli_run_free (r);
+}
+
 static void
 add_run_tests (void)
 {
@@ -764,6 +907,7 @@ add_run_tests (void)
   g_test_add_func ("/nn/train/tiny-trains-reliably", test_tiny_trains_reliably);
   g_test_add_func ("/nn/train/dead-network", test_dead_network_restarts);
   g_test_add_func ("/nn/train/bad-input", test_bad_input);
+  g_test_add_func ("/nn/train/command", test_cli_train);
 }
 
 
