@@ -132,6 +132,19 @@ trace_open (Builder *b, ReteByteMap *map, guint32 from, guint32 next)
     }
 }
 
+/* Clears the bits outside `keep` of every pixel. */
+static void
+keep_bits (ReteByteMap *map, guint8 keep)
+{
+  int w = map->width;
+  for (int y = 0; y < map->height; y++)
+    {
+      guint8 *row = map->pixels + rete_byte_map_index (map, 0, y);
+      for (int x = rete_next_set (row, 0, w); x < w; x = rete_next_set (row, x + 1, w))
+        row[x] &= keep;
+    }
+}
+
 static Builder *
 build (ReteByteMap *map, const float *distance, double sigma, gboolean with_figures)
 {
@@ -146,10 +159,11 @@ build (ReteByteMap *map, const float *distance, double sigma, gboolean with_figu
 
   GArray *nodes = g_array_new (FALSE, FALSE, sizeof (guint32));
   GHashTable *cluster = g_hash_table_new (NULL, NULL); /* junction pixel -> cluster id + 1 */
+  int w = map->width;
   for (int y = 0; y < map->height; y++)
     {
       guint32 base = rete_byte_map_index (map, 0, y);
-      for (int x = 0; x < map->width; x++)
+      for (int x = rete_next_set (p + base, 0, w); x < w; x = rete_next_set (p + base, x + 1, w))
         {
           guint32 i = base + x;
           p[i] &= 1u;
@@ -226,7 +240,7 @@ build (ReteByteMap *map, const float *distance, double sigma, gboolean with_figu
   for (int y = 0; y < map->height; y++)
     {
       guint32 base = rete_byte_map_index (map, 0, y);
-      for (int x = 0; x < map->width; x++)
+      for (int x = rete_next_set (p + base, 0, w); x < w; x = rete_next_set (p + base, x + 1, w))
         {
           guint32 i = base + x;
           if ((p[i] & (1u | TRACED | JUNCTION)) != 1u || is_node (p, i, s))
@@ -279,8 +293,7 @@ rete_graph_build (ReteByteMap *skeleton, const float *distance, double curvature
   ReteGraph *graph = g_new (ReteGraph, 1);
   *graph = b->graph;
   builder_free (b, TRUE);
-  for (gsize i = 0; i < (gsize) (skeleton->height + 2) * skeleton->stride; i++)
-    skeleton->pixels[i] &= 1u | JUNCTION;
+  keep_bits (skeleton, 1u | JUNCTION);
   return graph;
 }
 
@@ -299,7 +312,7 @@ rete_graph_prune (ReteByteMap *map, double min_length)
   if (!(min_length > 0))
     return 0;
   guint8 *p = map->pixels;
-  gsize s = map->stride, size = (gsize) (map->height + 2) * s;
+  gsize s = map->stride;
   Builder *b = build (map, NULL, 0, FALSE);
   int removed = 0;
   for (guint k = 0; k < b->graph.segments->len; k++)
@@ -322,20 +335,28 @@ rete_graph_prune (ReteByteMap *map, double min_length)
   builder_free (b, FALSE);
   /* isolated pixels, and junction pixels left as stubs once their spur has gone */
   gboolean again = TRUE;
+  int w = map->width;
   while (again)
     {
       again = FALSE;
-      for (gsize i = s + 1; i < size - s - 1; i++)
-        if ((p[i] & 1) && count_neighbours (p, i, s) <= ((p[i] & JUNCTION) ? 1 : 0))
-          {
-            p[i] &= ~1u;
-            again = TRUE;
-            if (!(p[i] & JUNCTION))
-              removed++;
-          }
+      for (int y = 0; y < map->height; y++)
+        {
+          guint32 base = rete_byte_map_index (map, 0, y);
+          for (int x = rete_next_set (p + base, 0, w); x < w;
+               x = rete_next_set (p + base, x + 1, w))
+            {
+              guint32 i = base + x;
+              if ((p[i] & 1) && count_neighbours (p, i, s) <= ((p[i] & JUNCTION) ? 1 : 0))
+                {
+                  p[i] &= ~1u;
+                  again = TRUE;
+                  if (!(p[i] & JUNCTION))
+                    removed++;
+                }
+            }
+        }
     }
-  for (gsize i = 0; i < size; i++)
-    p[i] &= 1u;
+  keep_bits (map, 1u);
   rete_thin_remove_redundant (map);
   return removed;
 }
@@ -349,10 +370,11 @@ rete_graph_point_types (const ReteByteMap *map, float *point_type)
     {
       guint32 base = rete_byte_map_index (map, 0, y);
       float *out = point_type + (gsize) y * map->width;
-      for (int x = 0; x < map->width; x++)
+      memset (out, 0, map->width * sizeof (float)); /* RETE_POINT_NONE */
+      for (int x = rete_next_set (p + base, 0, map->width); x < map->width;
+           x = rete_next_set (p + base, x + 1, map->width))
         {
           guint32 i = base + x;
-          out[x] = RETE_POINT_NONE;
           if (!(p[i] & 1))
             continue;
           int c = count_neighbours (p, i, s);

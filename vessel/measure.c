@@ -308,7 +308,7 @@ rete_measure (const ReteImage *binary, const ReteImage *fov, const ReteMeasurePa
   for (int y = 0; y < h; y++)
     {
       const guint8 *row = skeleton->pixels + rete_byte_map_index (skeleton, 0, y);
-      for (int x = 0; x < w; x++)
+      for (int x = rete_next_set (row, 0, w); x < w; x = rete_next_set (row, x + 1, w))
         skeleton_pixels += row[x] & 1;
     }
   m->skeleton_pixels = skeleton_pixels;
@@ -328,8 +328,8 @@ rete_measure (const ReteImage *binary, const ReteImage *fov, const ReteMeasurePa
       for (int y = 0; y < h; y++)
         {
           const guint8 *row = skeleton->pixels + rete_byte_map_index (skeleton, 0, y);
-          float *out = m->skeleton->data + (gsize) y * w;
-          for (int x = 0; x < w; x++)
+          float *out = m->skeleton->data + (gsize) y * w; /* zeros from rete_image_new */
+          for (int x = rete_next_set (row, 0, w); x < w; x = rete_next_set (row, x + 1, w))
             out[x] = row[x] & 1;
         }
       rete_graph_point_types (skeleton, m->point_type->data);

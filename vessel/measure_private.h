@@ -9,6 +9,8 @@
 
 #include "rete_measure.h"
 
+#include <string.h>
+
 G_BEGIN_DECLS
 
 typedef struct {
@@ -22,6 +24,24 @@ static inline guint32
 rete_byte_map_index (const ReteByteMap *map, int x, int y)
 {
   return (guint32) ((y + 1) * (gsize) map->stride + x + 1);
+}
+
+/* The first x in [x, width) with row[x] != 0 (any bit), or width. Vessel maps and skeletons
+ * are mostly zeros, so the scan skips 8 bytes at a time. */
+static inline int
+rete_next_set (const guint8 *row, int x, int width)
+{
+  while (x + 8 <= width)
+    {
+      guint64 word;
+      memcpy (&word, row + x, 8);
+      if (word != 0)
+        break;
+      x += 8;
+    }
+  while (x < width && row[x] == 0)
+    x++;
+  return x;
 }
 
 G_GNUC_INTERNAL ReteByteMap *rete_byte_map_new (int width, int height, GError **error);

@@ -32,7 +32,9 @@
  * run) is never touched, so lines cannot be eaten from their ends.
  *
  * Speed: only foreground pixels are visited, from a list that shrinks as pixels go, so the
- * work is (foreground pixels) × (iterations ≈ half the widest vessel), not the frame size.
+ * work is (foreground pixels) × (iterations ≈ half the widest vessel), not the frame size;
+ * the decisions of a subiteration are taken in parallel (rete_parallel_for), the deletions
+ * applied after.
  */
 #include "measure_private.h"
 
@@ -142,10 +144,11 @@ static guint32 *
 foreground_list (const ReteByteMap *map, gsize *n_out)
 {
   gsize n = 0, s = map->stride;
+  int w = map->width;
   for (int y = 0; y < map->height; y++)
     {
       const guint8 *row = map->pixels + (y + 1) * s + 1;
-      for (int x = 0; x < map->width; x++)
+      for (int x = rete_next_set (row, 0, w); x < w; x = rete_next_set (row, x + 1, w))
         n += row[x] & 1;
     }
   guint32 *list = g_try_new (guint32, MAX (n, 1));
@@ -156,12 +159,30 @@ foreground_list (const ReteByteMap *map, gsize *n_out)
     {
       guint32 base = rete_byte_map_index (map, 0, y);
       const guint8 *row = map->pixels + base;
-      for (int x = 0; x < map->width; x++)
+      for (int x = rete_next_set (row, 0, w); x < w; x = rete_next_set (row, x + 1, w))
         if (row[x] & 1)
           list[k++] = base + x;
     }
   *n_out = n;
   return list;
+}
+
+/* One subiteration's decisions over list[first..last), read-only on the map: each thread
+ * writes only its own part of `doomed`. */
+typedef struct {
+  const guint8 *pixels;
+  gsize stride;
+  const guint32 *list;
+  guint8 *doomed;
+  const guint8 *table;
+} Marking;
+
+static void
+mark_range (int first, int last, gpointer data)
+{
+  const Marking *job = data;
+  for (int k = first; k < last; k++)
+    job->doomed[k] = job->table[rete_neighbour_code (job->pixels, job->list[k], job->stride)];
 }
 
 gboolean
@@ -171,8 +192,8 @@ rete_thin_zhang_suen (ReteByteMap *map, ReteThinning variant, ReteProgressFunc p
   ensure_tables ();
   gsize n, s = map->stride;
   guint32 *list = foreground_list (map, &n);
-  guint32 *deleted = list ? g_try_new (guint32, MAX (n, 1)) : NULL;
-  if (deleted == NULL)
+  guint8 *doomed = list && n <= G_MAXINT ? g_try_malloc (MAX (n, 1)) : NULL;
+  if (doomed == NULL)
     {
       g_free (list);
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
@@ -183,30 +204,23 @@ rete_thin_zhang_suen (ReteByteMap *map, ReteThinning variant, ReteProgressFunc p
   guint8 *p = map->pixels;
   gsize start = MAX (n, 1);
   gboolean removed = TRUE, ok = TRUE;
+  Marking job = { p, s, list, doomed, NULL };
   while (removed && ok)
     {
       removed = FALSE;
       for (int sub = 0; sub < 2; sub++)
         {
-          const guint8 *table = zhang_suen_table[variant == RETE_THINNING_LU_WANG][sub];
-          gsize n_deleted = 0;
+          job.table = zhang_suen_table[variant == RETE_THINNING_LU_WANG][sub];
+          rete_parallel_for ((int) n, mark_range, &job);
+          /* delete and compact the list in one pass */
+          gsize kept = 0;
           for (gsize k = 0; k < n; k++)
-            {
-              guint32 i = list[k];
-              if (table[rete_neighbour_code (p, i, s)])
-                deleted[n_deleted++] = i;
-            }
-          for (gsize k = 0; k < n_deleted; k++)
-            p[deleted[k]] = 0;
-          if (n_deleted > 0)
-            {
-              removed = TRUE;
-              gsize kept = 0;
-              for (gsize k = 0; k < n; k++)
-                if (p[list[k]] & 1)
-                  list[kept++] = list[k];
-              n = kept;
-            }
+            if (doomed[k])
+              p[list[k]] = 0;
+            else
+              list[kept++] = list[k];
+          removed |= kept < n;
+          n = kept;
         }
       if (progress != NULL
           && !progress (from + (to - from) * (1.0 - (double) n / start), "thinning", progress_data))
@@ -216,7 +230,7 @@ rete_thin_zhang_suen (ReteByteMap *map, ReteThinning variant, ReteProgressFunc p
         }
     }
   g_free (list);
-  g_free (deleted);
+  g_free (doomed);
   return ok;
 }
 
