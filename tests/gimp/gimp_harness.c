@@ -160,8 +160,13 @@ gimp_harness_run (const char *script, int timeout)
   run->failed = strstr (run->output, "execution error") != NULL
                 || strstr (run->output, "Procedure execution of") != NULL;
   run->crashed = strstr (run->output, "Plug-in crashed") != NULL
-                 || strstr (run->output, "fatal error") != NULL
-                 || strstr (run->output, "GIMP-Error") != NULL;
+                 || strstr (run->output, "fatal error") != NULL;
+  /* "GIMP-Error: Calling error for procedure ..." is how an error status is reported; any
+   * other GIMP-Error is not expected. */
+  for (const char *at = strstr (run->output, "GIMP-Error"); at; at = strstr (at + 1, "GIMP-Error"))
+    if (!g_str_has_prefix (at, "GIMP-Error: Calling error for procedure")
+        && !g_str_has_prefix (at, "GIMP-Error: Execution error for procedure"))
+      run->crashed = TRUE;
   parse_values (run);
   return run;
 }
