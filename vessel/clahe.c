@@ -59,7 +59,10 @@ typedef struct {
 } Clahe;
 
 /* Pass 1: range of the input inside the FOV, whether the FOV has a pixel, values that are
- * not numbers (x - x is 0 for every finite x, NaN for NaN and infinities). */
+ * not numbers (x - x is 0 for every finite x, NaN for NaN and infinities); and the 16-bit
+ * value of each pixel, rint (v × 65535) as skimage's img_as_uint on float32 (the
+ * conversion rounds to nearest, ties to even, as np.rint), clamped to [0, 1] first since
+ * outside the FOV anything goes. */
 static void
 range_rows (int first, int last, gpointer data)
 {
@@ -71,14 +74,21 @@ range_rows (int first, int last, gpointer data)
     {
       const float *g = t->grey + (gsize) y * t->width;
       const float *f = t->fov ? t->fov + (gsize) y * t->width : NULL;
+      guint16 *u = t->bins + (gsize) y * t->width;
       int x = 0;
 #ifdef __SSE2__
       __m128 lo4 = _mm_set1_ps (lo), hi4 = _mm_set1_ps (hi), bad4 = _mm_setzero_ps ();
       __m128 in4 = _mm_setzero_ps (), zero = _mm_setzero_ps (), half = _mm_set1_ps (0.5f);
       __m128 big = _mm_set1_ps (G_MAXFLOAT), small = _mm_set1_ps (-G_MAXFLOAT);
+      __m128 one = _mm_set1_ps (1.0f), scale = _mm_set1_ps (65535.0f);
+      __m128i bias = _mm_set1_epi32 (32768), flip = _mm_set1_epi16 ((short) 0x8000);
       for (; x + 4 <= t->width; x += 4)
         {
           __m128 v = _mm_loadu_ps (g + x);
+          /* to 16 bits: SSE2 packs signed, so shift by 32768 around the packing */
+          __m128i q = _mm_cvtps_epi32 (_mm_mul_ps (_mm_min_ps (_mm_max_ps (v, zero), one), scale));
+          q = _mm_packs_epi32 (_mm_sub_epi32 (q, bias), _mm_sub_epi32 (q, bias));
+          _mm_storel_epi64 ((__m128i *) (u + x), _mm_xor_si128 (q, flip));
           bad4 = _mm_or_ps (bad4, _mm_cmpneq_ps (_mm_sub_ps (v, v), zero));
           if (f != NULL)
             {
@@ -110,6 +120,7 @@ range_rows (int first, int last, gpointer data)
         {
           float v = g[x];
           gboolean in = f == NULL || f[x] > 0.5f;
+          u[x] = (guint16) lrintf (v > 0.0f ? (v < 1.0f ? v : 1.0f) * 65535.0f : 0.0f);
           any_in |= in;
           any_bad |= !(v - v == 0.0f) || (f != NULL && !(f[x] - f[x] == 0.0f));
           if (in)
@@ -330,36 +341,38 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
   c.g_min = c.v_min = G_MAXFLOAT;
   c.g_max = c.v_max = -G_MAXFLOAT;
   g_mutex_init (&c.lock);
+  ReteImage *result = NULL;
+  t->bins = g_try_new (guint16, rete_image_n_pixels (grey));
+  if (t->bins == NULL)
+    {
+      g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
+                   "not enough memory for CLAHE of a %d×%d image", grey->width, grey->height);
+      goto fail;
+    }
   rete_parallel_for (t->height, range_rows, &c);
   if (c.any_not_finite)
     {
-      g_mutex_clear (&c.lock);
       if (rete_image_check_finite (grey, "the image for CLAHE", error))
         rete_image_check_finite (fov, "the field of view", error);
-      return NULL;
+      goto fail;
     }
   if (!c.any_inside)
     {
-      g_mutex_clear (&c.lock);
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_EMPTY,
                    "the field of view is empty (no pixel above 0.5), so CLAHE has nothing to "
                    "equalise; detect the field of view again or give none");
-      return NULL;
+      goto fail;
     }
   if (c.g_min < 0.0f || c.g_max > 1.0f)
     {
-      g_mutex_clear (&c.lock);
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
                    "the image for CLAHE has values from %g to %g%s, outside [0, 1]; rescale it "
                    "to [0, 1] first", c.g_min, c.g_max, fov ? " inside the field of view" : "");
-      return NULL;
+      goto fail;
     }
-  ReteImage *result = rete_image_new_like (grey, 1, error);
+  result = rete_image_new_like (grey, 1, error);
   if (result == NULL)
-    {
-      g_mutex_clear (&c.lock);
-      return NULL;
-    }
+    goto fail;
   c.out = result->data;
   t->kw = params->kernel_width > 0 ? params->kernel_width : MAX (grey->width / 8, 1);
   t->kh = params->kernel_height > 0 ? params->kernel_height : MAX (grey->height / 8, 1);
@@ -384,7 +397,6 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
       lut[u] = (guint16) ((int) q / bin_size);
     }
   t->lut = lut;
-  t->bins = g_new (guint16, rete_image_n_pixels (grey));
 
   int *mirror_x = g_new (int, (gsize) t->nx * t->kw);
   int *mirror_y = g_new (int, (gsize) t->ny * t->kh);
@@ -417,4 +429,9 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
   g_free (t->bins);
   g_mutex_clear (&c.lock);
   return result;
+
+fail:
+  g_free (t->bins);
+  g_mutex_clear (&c.lock);
+  return NULL;
 }

@@ -20,7 +20,7 @@ typedef struct {
   const int *mirror_x;    /* (nx * kw) column read at each position of the tile grid */
   const int *mirror_y;    /* (ny * kh) */
   const guint16 *lut;     /* (65536) 16-bit value -> bin */
-  guint16 *bins;          /* (height, width) bin of each pixel, written by rete_clahe_tile_maps */
+  guint16 *bins;          /* (height, width) 16-bit values, turned into bins by rete_clahe_tile_maps */
   guint32 *hist;          /* (ny, nx, n_bins) */
   gint64 *count;          /* (ny, nx) pixels that entered each histogram */
   float *maps;            /* (ny, nx, n_bins) mapping of each bin, 0..16383 */

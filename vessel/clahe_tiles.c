@@ -8,9 +8,6 @@
 
 #include <math.h>
 #include <string.h>
-#ifdef __SSE2__
-#include <emmintrin.h>
-#endif
 
 #define MIN_FOV_FRACTION 16 /* a tile needs 1/16 of its area inside the FOV for a mapping */
 
@@ -68,33 +65,25 @@ rete_clahe_clip_histogram (guint32 *hist, int n, gint64 clip)
     }
 }
 
-/* Bins of one row: rint (v × 65535) (as skimage's img_as_uint on float32; the conversion
- * rounds to nearest, ties to even, as np.rint), then the table that stretches the 16-bit
- * value over the range and bins it. Values are clamped to [0, 1] first: outside the FOV
- * anything goes. */
+/* Bins of one row from its 16-bit values (pass 1 of clahe.c), in place, through the table
+ * that stretches them over the range and bins them. */
 static void
-bin_row (const float *grey, guint16 *bins, int width, const guint16 *lut)
+bin_row (guint16 *values, int width, const guint16 *lut)
 {
-  int x = 0;
-#ifdef __SSE2__
-  const __m128 zero = _mm_setzero_ps (), one = _mm_set1_ps (1.0f), scale = _mm_set1_ps (65535.0f);
-  for (; x + 4 <= width; x += 4)
-    {
-      __m128 v = _mm_min_ps (_mm_max_ps (_mm_loadu_ps (grey + x), zero), one);
-      int u[4];
-      _mm_storeu_si128 ((__m128i *) u, _mm_cvtps_epi32 (_mm_mul_ps (v, scale)));
-      bins[x] = lut[u[0]];
-      bins[x + 1] = lut[u[1]];
-      bins[x + 2] = lut[u[2]];
-      bins[x + 3] = lut[u[3]];
-    }
-#endif
-  for (; x < width; x++)
+  for (int x = 0; x < width; x++)
+    values[x] = lut[values[x]];
+}
+
+/* Bins of a row read mirrored past the bottom, from the grey values again (its own 16-bit
+ * values may already be bins, or be turned into bins by another worker right now). */
+static void
+bin_row_again (const float *grey, guint16 *bins, int width, const guint16 *lut)
+{
+  for (int x = 0; x < width; x++)
     {
       float v = grey[x];
-      v = v > 0.0f ? v : 0.0f;
-      v = v < 1.0f ? v : 1.0f;
-      bins[x] = lut[(int) lrintf (v * 65535.0f)];
+      v = v > 0.0f ? (v < 1.0f ? v : 1.0f) : 0.0f;
+      bins[x] = lut[lrintf (v * 65535.0f)];
     }
 }
 
@@ -116,7 +105,10 @@ tile_rows (int first, int last, gpointer data)
           /* rows of the image get their bins here; rows read mirrored past the bottom are
            * binned again into a private row (they may belong to another worker's tiles) */
           guint16 *b = r < c->height ? c->bins + row : mirrored_row;
-          bin_row (c->grey + row, b, c->width, c->lut);
+          if (r < c->height)
+            bin_row (b, c->width, c->lut);
+          else
+            bin_row_again (c->grey + row, b, c->width, c->lut);
           const float *f = c->fov ? c->fov + row : NULL;
           for (int tx = 0; tx < c->nx; tx++)
             {
