@@ -105,9 +105,10 @@ weights_by_row (const float *weight, int C_in, int C_out)
   return w;
 }
 
-/* The forward pass, with the activation applied band by band while the band is in cache. */
+/* The forward pass by im2col + GEMM, with the activation applied band by band while the band
+ * is in cache. */
 void
-conv3x3_forward_act (float *out, const float *inp, const float *weight, const float *bias,
+conv3x3_forward_gemm (float *out, const float *inp, const float *weight, const float *bias,
                      int N, int C_in, int C_out, int H, int W, gboolean relu)
 {
   int rows = band_rows (W, H);
@@ -143,6 +144,19 @@ conv3x3_forward_act (float *out, const float *inp, const float *weight, const fl
     }
   g_free (w_rows);
   g_free (columns);
+}
+
+void
+conv3x3_forward_act (float *out, const float *inp, const float *weight, const float *bias,
+                     int N, int C_in, int C_out, int H, int W, gboolean relu)
+{
+  static int use_direct = -1;
+  if (use_direct < 0) /* RETE_NN_GEMM=1 forces the GEMM path (for tests and comparisons) */
+    use_direct = conv3x3_direct_available () && g_getenv ("RETE_NN_GEMM") == NULL;
+  if (use_direct)
+    conv3x3_forward_direct (out, inp, weight, bias, N, C_in, C_out, H, W, relu);
+  else
+    conv3x3_forward_gemm (out, inp, weight, bias, N, C_in, C_out, H, W, relu);
 }
 
 void

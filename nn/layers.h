@@ -31,6 +31,16 @@ RETE_API void conv3x3_forward (float *out,          /* (N, C_out, H, W) */
 RETE_API void conv3x3_forward_act (float *out, const float *inp, const float *weight,
                                    const float *bias, int N, int C_in, int C_out, int H, int W,
                                    gboolean relu);
+/* The two implementations behind conv3x3_forward_act: im2col + cblas_sgemm (conv.c, any
+ * processor) and a direct kernel (conv_direct.c, processors with AVX-512, used when
+ * conv3x3_direct_available() unless the environment sets RETE_NN_GEMM). */
+RETE_API void conv3x3_forward_gemm (float *out, const float *inp, const float *weight,
+                                    const float *bias, int N, int C_in, int C_out, int H, int W,
+                                    gboolean relu);
+RETE_API void conv3x3_forward_direct (float *out, const float *inp, const float *weight,
+                                      const float *bias, int N, int C_in, int C_out, int H,
+                                      int W, gboolean relu);
+RETE_API gboolean conv3x3_direct_available (void);
 RETE_API void conv3x3_backward (float *dinp,         /* (N, C_in, H, W), may be NULL (first layer) */
                        float *dweight,      /* (C_out, C_in, 3, 3) */
                        float *dbias,        /* (C_out) */

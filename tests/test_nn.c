@@ -242,6 +242,23 @@ test_layer (gconstpointer data)
       g_test_message ("%s: fused convolution + ReLU vs naive, largest relative difference %.2e "
                       "(tolerance 1e-5)", c->path, d);
       g_assert_cmpfloat (d, <=, 1e-5);
+      for (int path = 0; path < 2; path++) /* both implementations, with and without ReLU */
+        for (int act = 0; act < 2; act++)
+          {
+            if (path == 1 && !conv3x3_direct_available ())
+              {
+                g_test_message ("%s: no AVX-512 here, direct kernel not checked", c->path);
+                continue;
+              }
+            (path == 0 ? conv3x3_forward_gemm : conv3x3_forward_direct) (fused, inp, w, b, c->N,
+                                                                         c->C_in, c->C_out, c->H,
+                                                                         c->W, act);
+            d = relative_diff (fused, act ? out : out_naive, s.n_out);
+            g_test_message ("%s: %s%s vs naive, largest relative difference %.2e (tolerance 1e-5)",
+                            c->path, path == 0 ? "im2col + GEMM" : "direct kernel",
+                            act ? " + ReLU" : "", d);
+            g_assert_cmpfloat (d, <=, 1e-5);
+          }
       g_free (fused);
     }
 
@@ -284,6 +301,8 @@ static const LayerCase layer_cases[] = {
   { "/nn/layers/conv3x3/small", LAYER_CONV3, 2, 3, 4, 5, 6, FALSE },
   { "/nn/layers/conv3x3/one-row", LAYER_CONV3, 1, 2, 3, 1, 7, FALSE },
   { "/nn/layers/conv3x3/wide-bands", LAYER_CONV3, 1, 4, 5, 9, 1100, FALSE }, /* several row bands */
+  { "/nn/layers/conv3x3/channel-blocks", LAYER_CONV3, 2, 20, 17, 13, 45, FALSE }, /* 3 blocks of 8, a partial pixel block */
+  { "/nn/layers/conv3x3/one-column", LAYER_CONV3, 1, 3, 9, 6, 1, FALSE },
   { "/nn/layers/conv1x1/small", LAYER_CONV1, 2, 5, 3, 4, 6, FALSE },
   { "/nn/layers/upconv2x2/small", LAYER_UPCONV, 2, 4, 3, 3, 5, FALSE },
   { "/nn/layers/upconv2x2/wide-bands", LAYER_UPCONV, 1, 3, 2, 5, 2000, FALSE },
