@@ -554,6 +554,17 @@ test_units (void)
   g_assert_nonnull (strstr (header, "vessel_area_mm2,"));
   g_assert_nonnull (strstr (header, "mean_calibre_mm,"));
   g_assert_null (strstr (header, "_px2,"));
+  g_autofree ReteMeasureField *fields = NULL;
+  int n_fields = rete_measurements_fields (mm, &fields);
+  gboolean found = FALSE;
+  for (int i = 0; i < n_fields; i++)
+    if (strcmp (fields[i].column, "skeleton_length_mm") == 0)
+      {
+        found = TRUE;
+        g_assert_cmpstr (fields[i].unit, ==, "mm");
+        g_assert_cmpfloat (fields[i].value, ==, mm->skeleton_length);
+      }
+  g_assert_true (found);
 }
 
 /* ---- CSV ---- */
@@ -586,6 +597,16 @@ test_csv (void)
   g_assert_true (g_str_has_suffix (row, "\n"));
   g_assert_nonnull (strstr (m->notes, "not binary"));
   g_assert_cmpuint (m->non_binary_pixels, ==, 1);
+  /* the dialog's table holds the same figures as the CSV, in its order */
+  g_autofree ReteMeasureField *fields = NULL;
+  int n_fields = rete_measurements_fields (m, &fields);
+  g_assert_cmpint (n_fields + 4, ==, count_fields (header)); /* + name, pixel size, fov, notes */
+  g_auto (GStrv) columns = g_strsplit (header, ",", -1);
+  for (int i = 0; i < n_fields; i++)
+    {
+      g_assert_cmpstr (fields[i].column, ==, columns[i + 3]);
+      g_assert_true (fields[i].label != NULL && fields[i].label[0] != '\0');
+    }
   g_autofree char *segments = rete_measurements_segments_csv (m, "x");
   g_auto (GStrv) lines = g_strsplit (segments, "\n", -1);
   g_assert_cmpint (g_strv_length (lines), ==, m->n_segments + 2); /* header + rows + "" */

@@ -156,6 +156,20 @@ RETE_API char *rete_measurements_csv_row (const ReteMeasurements *measurements, 
 RETE_API char *rete_measurements_segments_csv (const ReteMeasurements *measurements,
                                                const char *name);
 
+/* The per-image figures as rows for a dialog's table, in the CSV's column order (the CSV adds
+ * name, pixel_size_mm, fov and notes around them). Strings are static. */
+typedef struct {
+  const char *column; /* CSV column name, unit included: "skeleton_length_mm" */
+  const char *label;  /* for people: "Skeleton length" */
+  const char *unit;   /* for people: "mm", "px²", "% of FOV", "1/mm²"; "" for counts and ratios */
+  double value;       /* NaN when undefined */
+  gboolean is_count;  /* an integer count */
+} ReteMeasureField;
+
+/* Fills *fields (newly allocated, g_free it) and returns how many there are. */
+RETE_API int rete_measurements_fields (const ReteMeasurements *measurements,
+                                       ReteMeasureField **fields);
+
 /* ---- The building blocks, for tests and for callers that need one piece ---- */
 
 typedef enum {
