@@ -14,6 +14,7 @@
 #include <string.h>
 
 #include "rete_agreement.h"
+#include "rete_io.h"
 #include "rete_test.h"
 
 #define TOLERANCE 1e-9
@@ -42,6 +43,7 @@ static const ReferenceCase reference_cases[] = {
   { "/vessel/agreement/matches-sklearn/uniform-masked", 300, 200, SCORES_UNIFORM, TRUE, 0.37, 1000000, FALSE },
   { "/vessel/agreement/matches-sklearn/heavy-ties", 300, 200, SCORES_TENTHS, TRUE, 0.3, 100, FALSE },
   { "/vessel/agreement/matches-sklearn/8-bit", 999, 960, SCORES_8BIT, TRUE, 0.5, 300, FALSE },
+  { "/vessel/agreement/matches-sklearn/uniform-chase-size", 999, 960, SCORES_UNIFORM, TRUE, 0.45, 512, FALSE },
   { "/vessel/agreement/matches-sklearn/16-bit", 400, 300, SCORES_16BIT, FALSE, 0.61, 1000, FALSE },
   { "/vessel/agreement/matches-sklearn/binary-map", 300, 200, SCORES_BINARY, TRUE, 0.5, 10, FALSE },
   { "/vessel/agreement/matches-sklearn/signed-scores", 200, 150, SCORES_SIGNED, FALSE, -0.25, 40, FALSE },
@@ -114,7 +116,7 @@ compare (Comparison *cmp, const char *what, double ours, JsonObject *object, con
 }
 
 static JsonObject *
-run_reference (const ReferenceCase *c, const ReteImage *scores, const ReteImage *reference,
+run_reference (double case_threshold, const ReteImage *scores, const ReteImage *reference,
                const ReteImage *mask, const ReteAgreement *a, JsonParser *parser)
 {
   g_autofree char *scores_path = rete_test_tmp_path ("scores.npy");
@@ -132,7 +134,7 @@ run_reference (const ReferenceCase *c, const ReteImage *scores, const ReteImage 
   g_assert_true (rete_test_write_npy_f32 (roc_path, roc, shape, 1, NULL));
   char threshold[G_ASCII_DTOSTR_BUF_SIZE], best_dice[G_ASCII_DTOSTR_BUF_SIZE],
        best_youden[G_ASCII_DTOSTR_BUF_SIZE];
-  g_ascii_dtostr (threshold, sizeof threshold, c->threshold);
+  g_ascii_dtostr (threshold, sizeof threshold, case_threshold);
   g_ascii_dtostr (best_dice, sizeof best_dice, a->best_dice_threshold);
   g_ascii_dtostr (best_youden, sizeof best_youden, a->best_youden_threshold);
   GError *error = NULL;
@@ -153,29 +155,10 @@ run_reference (const ReferenceCase *c, const ReteImage *scores, const ReteImage 
   return json_node_get_object (json_parser_get_root (parser));
 }
 
+/* Every figure of `a` against sklearn's (ref_auc_metrics.py's JSON). */
 static void
-test_matches_sklearn (gconstpointer data)
+compare_all (Comparison *cmp_out, const ReteAgreement *a, JsonObject *ref, int max_roc_points)
 {
-  const ReferenceCase *c = data;
-  ReteImage *scores, *reference, *mask;
-  make_case (c, &scores, &reference, &mask);
-  /* the deliberately wrong case: ours sees a reference with 2% of its labels flipped */
-  g_autoptr (ReteImage) ours_reference = rete_image_copy (reference, NULL);
-  if (c->deliberately_wrong)
-    for (gsize i = 0; i < rete_image_n_pixels (reference); i += 50)
-      ours_reference->data[i] = 1.0f - ours_reference->data[i];
-
-  GError *error = NULL;
-  gint64 t0 = g_get_monotonic_time ();
-  g_autoptr (ReteAgreement) a = rete_agreement_compute (scores, ours_reference, mask, c->threshold,
-                                                        c->max_roc_points, &error);
-  gint64 t1 = g_get_monotonic_time ();
-  g_assert_no_error (error);
-  g_autoptr (JsonParser) parser = json_parser_new ();
-  JsonObject *ref = run_reference (c, scores, reference, mask, a, parser);
-  if (ref == NULL)
-    goto out;
-
   Comparison cmp = { 0 };
   compare (&cmp, "n_positive", (double) a->n_positive, ref, "n_positive");
   compare (&cmp, "n_negative", (double) a->n_negative, ref, "n_negative");
@@ -201,10 +184,10 @@ test_matches_sklearn (gconstpointer data)
   g_assert_cmpuint (json_array_get_length (rf), ==, a->n_roc_points);
   /* every distinct score while they fit, else at most max_roc_points */
   gint64 n_distinct = json_object_get_int_member (ref, "roc_n_distinct");
-  if (n_distinct + 1 <= c->max_roc_points)
+  if (n_distinct + 1 <= max_roc_points)
     g_assert_cmpint (a->n_roc_points, ==, n_distinct + 1);
   else
-    g_assert_cmpint (a->n_roc_points, <=, c->max_roc_points);
+    g_assert_cmpint (a->n_roc_points, <=, max_roc_points);
   g_assert_cmpint (a->n_roc_points, >=, 2);
   for (int k = 0; k < a->n_roc_points; k++)
     {
@@ -219,7 +202,33 @@ test_matches_sklearn (gconstpointer data)
     }
   g_assert_cmpfloat (a->roc_false_positive_rate[a->n_roc_points - 1], ==, 1.0);
   g_assert_cmpfloat (a->roc_true_positive_rate[a->n_roc_points - 1], ==, 1.0);
+  *cmp_out = cmp;
+}
 
+static void
+test_matches_sklearn (gconstpointer data)
+{
+  const ReferenceCase *c = data;
+  ReteImage *scores, *reference, *mask;
+  make_case (c, &scores, &reference, &mask);
+  /* the deliberately wrong case: ours sees a reference with 2% of its labels flipped */
+  g_autoptr (ReteImage) ours_reference = rete_image_copy (reference, NULL);
+  if (c->deliberately_wrong)
+    for (gsize i = 0; i < rete_image_n_pixels (reference); i += 50)
+      ours_reference->data[i] = 1.0f - ours_reference->data[i];
+
+  GError *error = NULL;
+  gint64 t0 = g_get_monotonic_time ();
+  g_autoptr (ReteAgreement) a = rete_agreement_compute (scores, ours_reference, mask, c->threshold,
+                                                        c->max_roc_points, &error);
+  gint64 t1 = g_get_monotonic_time ();
+  g_assert_no_error (error);
+  g_autoptr (JsonParser) parser = json_parser_new ();
+  JsonObject *ref = run_reference (c->threshold, scores, reference, mask, a, parser);
+  if (ref == NULL)
+    goto out;
+  Comparison cmp = { 0 };
+  compare_all (&cmp, a, ref, c->max_roc_points);
   g_test_message ("%dx%d, %" G_GSIZE_FORMAT " distinct scores, %d ROC points, %.1f ms: largest "
                   "difference from sklearn %.3g (%s), tolerance %g", c->width, c->height,
                   a->n_distinct_scores, a->n_roc_points, (t1 - t0) / 1000.0, cmp.worst,
@@ -233,6 +242,7 @@ out:
   rete_image_free (reference);
   rete_image_free (mask);
 }
+
 
 /* The sklearn documentation's example for roc_auc_score: y = [0, 0, 1, 1],
  * scores = [0.1, 0.4, 0.35, 0.8] give 0.75; average_precision_score's: 0.8333... */
@@ -593,6 +603,72 @@ test_threshold_and_map (void)
   rete_image_free (mask);
 }
 
+/* ---- open data: CHASE_DB1 (Fraz et al., IEEE TBME 2012), second observer against the
+ * first inside the FOV mask, as a binary map and as a blurred (soft) map; two photographs
+ * of the training part (01L, 05R) keep the check short. */
+
+/* Mean over a (2r+1)^2 window, clamped at the edges: a soft map with many distinct values. */
+static ReteImage *
+box_blur (const ReteImage *in, int r)
+{
+  ReteImage *out = rete_image_new_like (in, 1, NULL);
+  for (int y = 0; y < in->height; y++)
+    for (int x = 0; x < in->width; x++)
+      {
+        double sum = 0;
+        for (int dy = -r; dy <= r; dy++)
+          for (int dx = -r; dx <= r; dx++)
+            sum += rete_image_get (in, 0, CLAMP (x + dx, 0, in->width - 1),
+                                   CLAMP (y + dy, 0, in->height - 1));
+        out->data[(gsize) y * in->width + x] = (float) (sum / ((2 * r + 1) * (2 * r + 1)));
+      }
+  return out;
+}
+
+static void
+test_chase_second_observer (void)
+{
+  static const char *const names[] = { "Image_01L", "Image_05R" };
+  rete_io_init ();
+  for (gsize k = 0; k < G_N_ELEMENTS (names); k++)
+    {
+      g_autofree char *first = g_strdup_printf ("chase_db1/manual1/%s.png", names[k]);
+      g_autofree char *second = g_strdup_printf ("chase_db1/manual2/%s.png", names[k]);
+      g_autofree char *fov = g_strdup_printf ("chase_db1/mask/%s.png", names[k]);
+      g_autofree char *first_path = rete_test_data_file (first);
+      g_autofree char *second_path = first_path ? rete_test_data_file (second) : NULL;
+      g_autofree char *fov_path = second_path ? rete_test_data_file (fov) : NULL;
+      if (fov_path == NULL)
+        return; /* skipped, with the reason */
+      GError *error = NULL;
+      g_autoptr (ReteImage) reference = rete_io_load_grey (first_path, &error);
+      g_assert_no_error (error);
+      g_autoptr (ReteImage) map = rete_io_load_grey (second_path, &error);
+      g_assert_no_error (error);
+      g_autoptr (ReteImage) mask = rete_io_load_grey (fov_path, &error);
+      g_assert_no_error (error);
+      g_autoptr (ReteImage) soft = box_blur (map, 2);
+      const ReteImage *maps[] = { map, soft };
+      for (int m = 0; m < 2; m++)
+        {
+          g_autoptr (ReteAgreement) a = rete_agreement_compute (maps[m], reference, mask, 0.5, 400, &error);
+          g_assert_no_error (error);
+          g_autoptr (JsonParser) parser = json_parser_new ();
+          JsonObject *ref = run_reference (0.5, maps[m], reference, mask, a, parser);
+          if (ref == NULL)
+            return;
+          Comparison cmp = { 0 };
+          compare_all (&cmp, a, ref, 400);
+          g_test_message ("%s, second observer %s: AUC %.4f, accuracy %.4f, sensitivity %.4f, "
+                          "specificity %.4f, Dice %.4f; largest difference from sklearn %.3g "
+                          "(%s), tolerance %g", names[k], m ? "blurred (5x5 mean)" : "binary",
+                          a->auc, a->rates.accuracy, a->rates.sensitivity, a->rates.specificity,
+                          a->rates.dice, cmp.worst, cmp.worst_what, TOLERANCE);
+          g_assert_cmpfloat (cmp.worst, <=, TOLERANCE);
+        }
+    }
+}
+
 int
 main (int argc, char **argv)
 {
@@ -608,5 +684,6 @@ main (int argc, char **argv)
   g_test_add_func ("/vessel/agreement/one-class-reference", test_one_class_reference);
   g_test_add_func ("/vessel/agreement/non-binary-reference", test_non_binary_reference);
   g_test_add_func ("/vessel/agreement/threshold-and-map", test_threshold_and_map);
+  g_test_add_func ("/vessel/agreement/chase-db1/second-observer", test_chase_second_observer);
   return g_test_run ();
 }
