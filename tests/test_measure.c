@@ -14,8 +14,11 @@
  */
 #include <math.h>
 #include <string.h>
+#include <sys/wait.h>
+#include <glib/gstdio.h>
 
 #include "rete_test.h"
+#include "rete_io.h"
 #include "rete_measure.h"
 #include "rete_synth.h"
 
@@ -747,6 +750,95 @@ test_odd_input (void)
   g_assert_nonnull (strstr (o->notes, "outside the field of view"));
 }
 
+/* ---- the `rete measure` command ---- */
+
+static int
+run_rete (const char *const *args, char **out, char **err)
+{
+  const char *build = g_getenv ("RETE_BUILD_DIR");
+  g_autofree char *exe = g_build_filename (build ? build : ".", "cli", "rete", NULL);
+  if (!g_file_test (exe, G_FILE_TEST_IS_EXECUTABLE))
+    return -1;
+  GPtrArray *argv = g_ptr_array_new ();
+  g_ptr_array_add (argv, exe);
+  for (int i = 0; args[i]; i++)
+    g_ptr_array_add (argv, (gpointer) args[i]);
+  g_ptr_array_add (argv, NULL);
+  int status = -1;
+  GError *error = NULL;
+  g_assert_true (g_spawn_sync (NULL, (char **) argv->pdata, NULL, G_SPAWN_DEFAULT, NULL, NULL,
+                               out, err, &status, &error));
+  g_assert_no_error (error);
+  g_ptr_array_free (argv, TRUE);
+  return WIFEXITED (status) ? WEXITSTATUS (status) : -1;
+}
+
+static void
+test_command (void)
+{
+  rete_io_init ();
+  g_autofree char *folder = rete_test_tmp_path ("maps");
+  g_mkdir_with_parents (folder, 0755);
+  for (guint64 seed = 1; seed <= 2; seed++)
+    {
+      g_autoptr (ReteImage) map = synthetic_map (seed, 300, 280, NULL);
+      g_autofree char *name = g_strdup_printf ("map%" G_GUINT64_FORMAT ".png", seed);
+      g_autofree char *path = g_build_filename (folder, name, NULL);
+      g_assert_true (rete_io_save (map, path, NULL, NULL));
+    }
+  g_autofree char *broken = g_build_filename (folder, "map3.png", NULL);
+  g_assert_true (g_file_set_contents (broken, "not a PNG", -1, NULL));
+  g_autofree char *csv = rete_test_tmp_path ("measurements.csv");
+  g_autofree char *segments = rete_test_tmp_path ("segments.csv");
+  const char *args[] = { "measure", "-q", "--pixel-size", "0.01", "-o", csv, "--segments",
+                         segments, folder, NULL };
+  g_autofree char *out = NULL, *err = NULL;
+  int status = run_rete (args, &out, &err);
+  if (status == -1)
+    {
+      g_test_skip ("the rete command is not built");
+      return;
+    }
+  g_test_message ("rete measure on 2 maps and a broken file: exit %d; stderr: %s", status, err);
+  g_assert_cmpint (status, ==, 1); /* one failure, the others measured */
+  g_autofree char *table = NULL;
+  g_assert_true (g_file_get_contents (csv, &table, NULL, NULL));
+  g_auto (GStrv) lines = g_strsplit (table, "\n", -1);
+  g_assert_cmpint (g_strv_length (lines), ==, 4); /* header, 2 rows, "" */
+  g_assert_nonnull (strstr (lines[0], "skeleton_length_mm"));
+  g_assert_true (g_str_has_prefix (lines[1], "map1.png,0.01,"));
+  g_assert_nonnull (strstr (err, "map3.png"));
+  g_autofree char *seg_table = NULL;
+  g_assert_true (g_file_get_contents (segments, &seg_table, NULL, NULL));
+  g_assert_true (g_str_has_prefix (seg_table, "name,segment,"));
+
+  /* calibration values that are zero, negative, absurd or conflicting: usage errors (2),
+   * nothing written */
+  static const char *const bad[][5] = {
+    { "--pixel-size", "0", NULL },
+    { "--pixel-size", "-0.004", NULL },
+    { "--pixel-size", "7", NULL },
+    { "--fov-diameter-px", "3000", NULL },
+    { "--fov-diameter-px", "3000", "--fov-diameter-mm", "0", NULL },
+    { "--pixel-size", "0.005", "--fov-diameter-px", "3000", NULL },
+  };
+  for (guint i = 0; i < G_N_ELEMENTS (bad); i++)
+    {
+      g_autofree char *other = rete_test_tmp_path ("never.csv");
+      const char *a[10] = { "measure", "-q", "-o", other };
+      int k = 4;
+      for (int j = 0; bad[i][j]; j++)
+        a[k++] = bad[i][j];
+      a[k++] = folder;
+      a[k] = NULL;
+      g_autofree char *o = NULL, *e = NULL;
+      int st = run_rete (a, &o, &e);
+      g_test_message ("%s %s: exit %d: %s", bad[i][0], bad[i][1], st, e);
+      g_assert_cmpint (st, ==, 2);
+      g_assert_false (g_file_test (other, G_FILE_TEST_EXISTS));
+    }
+}
+
 int
 main (int argc, char **argv)
 {
@@ -775,5 +867,6 @@ main (int argc, char **argv)
       g_test_add_data_func (path, &bad_cases[i], test_bad_input);
     }
   g_test_add_func ("/measure/odd-input/measurable", test_odd_input);
+  g_test_add_func ("/measure/command/folder-with-a-broken-file", test_command);
   return g_test_run ();
 }
