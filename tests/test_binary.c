@@ -12,6 +12,7 @@
 #include <string.h>
 
 #include "rete_binary.h"
+#include "rete_io.h"
 #include "rete_test.h"
 
 typedef enum {
@@ -330,6 +331,75 @@ check:
   g_clear_error (&error);
 }
 
+/* ---- open data: a real 8-megapixel vessel tree, HRF 01_h (Budai et al., Int. J. Biomed.
+ * Imaging 2013), its manual map thresholded at 128 as the data README says. Clean-up and
+ * Otsu (of a 5x5-mean blurred copy) against skimage on the full 3504x2336. */
+static void
+test_hrf_clean_and_otsu (void)
+{
+  g_autofree char *path = rete_test_data_file ("hrf_manual/01_h.png");
+  if (path == NULL)
+    return;
+  rete_io_init ();
+  GError *error = NULL;
+  g_autoptr (ReteImage) manual = rete_io_load_grey (path, &error);
+  g_assert_no_error (error);
+  g_autoptr (ReteImage) binary = rete_binarise (manual, NULL, 0.5, &error);
+  g_assert_no_error (error);
+  g_autofree char *in_path = rete_test_tmp_path ("hrf-in.npy");
+  g_autofree char *out_path = rete_test_tmp_path ("hrf-out.npy");
+  g_assert_true (rete_test_write_image_npy (in_path, binary, NULL));
+  g_autoptr (JsonParser) parser = json_parser_new ();
+  JsonObject *ref = python_json (parser, "clean", in_path, "30", "10", out_path, NULL);
+  if (ref == NULL)
+    return;
+  g_autoptr (ReteImage) theirs = rete_test_read_image_npy (out_path, &error);
+  g_assert_no_error (error);
+  gint64 t0 = g_get_monotonic_time ();
+  g_assert_true (rete_binary_clean (binary, 30, 10, &error));
+  gint64 t1 = g_get_monotonic_time ();
+  gsize differ = 0, n = rete_image_n_pixels (binary);
+  for (gsize i = 0; i < n; i++)
+    differ += binary->data[i] != theirs->data[i];
+  g_test_message ("HRF 01_h %dx%d: clean-up (30, 10) in %.0f ms; %" G_GSIZE_FORMAT
+                  " pixels differ from skimage (tolerance 0)", binary->width, binary->height,
+                  (t1 - t0) / 1000.0, differ);
+  g_assert_cmpuint (differ, ==, 0);
+
+  /* a soft map: mean over 5x5 (running sums along rows, then columns) */
+  g_autoptr (ReteImage) soft = rete_image_new_like (manual, 1, NULL);
+  int w = manual->width, h = manual->height;
+  g_autofree double *rows = g_new (double, (gsize) w * h);
+  for (int y = 0; y < h; y++)
+    for (int x = 0; x < w; x++)
+      {
+        double sum = 0;
+        for (int d = -2; d <= 2; d++)
+          sum += binary->data[(gsize) y * w + CLAMP (x + d, 0, w - 1)];
+        rows[(gsize) y * w + x] = sum;
+      }
+  for (int y = 0; y < h; y++)
+    for (int x = 0; x < w; x++)
+      {
+        double sum = 0;
+        for (int d = -2; d <= 2; d++)
+          sum += rows[(gsize) CLAMP (y + d, 0, h - 1) * w + x];
+        soft->data[(gsize) y * w + x] = (float) (sum / 25.0);
+      }
+  g_autofree char *soft_path = rete_test_tmp_path ("hrf-soft.npy");
+  g_assert_true (rete_test_write_image_npy (soft_path, soft, NULL));
+  g_autoptr (JsonParser) parser2 = json_parser_new ();
+  JsonObject *otsu = python_json (parser2, "otsu", soft_path, "-", NULL);
+  if (otsu == NULL)
+    return;
+  double ours = rete_threshold_otsu (soft, NULL, &error);
+  g_assert_no_error (error);
+  double want = json_object_get_double_member (otsu, "threshold");
+  g_test_message ("HRF 01_h blurred: Otsu level ours %.9g, skimage %.9g, difference %.3g "
+                  "(tolerance 0)", ours, want, fabs (ours - want));
+  g_assert_cmpfloat (ours, ==, want);
+}
+
 int
 main (int argc, char **argv)
 {
@@ -340,6 +410,7 @@ main (int argc, char **argv)
     g_test_add_data_func (clean_cases[i].path, &clean_cases[i], test_clean);
   g_test_add_func ("/vessel/binary/fraction/matches-numpy", test_fraction);
   g_test_add_func ("/vessel/binary/map/whole-step", test_binary_map);
+  g_test_add_func ("/vessel/binary/hrf/clean-and-otsu-match-skimage", test_hrf_clean_and_otsu);
   for (gsize i = 0; i < G_N_ELEMENTS (bad_cases); i++)
     g_test_add_data_func (bad_cases[i].path, &bad_cases[i], test_bad_input);
   return g_test_run ();
