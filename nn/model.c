@@ -12,12 +12,16 @@
  */
 #include "unet_private.h"
 
+#include <glib/gstdio.h>
 #include <json-glib/json-glib.h>
 #include <math.h>
 #include <string.h>
 
 /* A header longer than this is not a model of this library (ours are a few kilobytes). */
 #define MAX_HEADER_BYTES ((guint64) 16 << 20)
+/* The largest U-Net (5 levels, 64 filters, 2 convolutions, 3 channels) has 31 million
+ * parameters, 124 MB; a file much larger than that is refused before it is read. */
+#define MAX_FILE_BYTES ((guint64) 512 << 20)
 
 struct _ReteModel {
   ReteUnet *net;
@@ -428,6 +432,15 @@ rete_model_load (const char *path, GError **error)
   if (path == NULL)
     {
       g_set_error (error, RETE_NN_ERROR, RETE_ERROR_INVALID_ARGUMENT, "no model file given");
+      return NULL;
+    }
+  GStatBuf st;
+  if (g_stat (path, &st) == 0 && (guint64) st.st_size > MAX_FILE_BYTES)
+    {
+      g_set_error (error, RETE_NN_ERROR, RETE_ERROR_FORMAT,
+                   "model file %s is %.1f GB, far more than any U-Net this library builds "
+                   "(the largest is about 125 MB); it is not a Rete model", path,
+                   st.st_size / 1e9);
       return NULL;
     }
   if (!g_file_get_contents (path, &contents, &length, &local))

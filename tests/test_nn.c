@@ -8,6 +8,7 @@
  * tolerates 1e-3 of the largest gradient (float rounding divided by 2ε, from the sizes used).
  */
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <glib/gstdio.h>
@@ -731,6 +732,24 @@ test_bad_file_missing (void)
 }
 
 static void
+test_bad_file_huge (void)
+{
+  /* a sparse file of 600 MB: refused by its size before anything is read */
+  g_autofree char *path = rete_test_tmp_path ("huge.safetensors");
+  FILE *f = fopen (path, "wb");
+  g_assert_nonnull (f);
+  g_assert_cmpint (fseeko (f, (off_t) 600 << 20, SEEK_SET), ==, 0);
+  fputc (0, f);
+  fclose (f);
+  GError *error = NULL;
+  g_assert_null (rete_model_load (path, &error));
+  g_assert_error (error, RETE_NN_ERROR, RETE_ERROR_FORMAT);
+  g_test_message ("%s", error->message);
+  g_error_free (error);
+  g_unlink (path);
+}
+
+static void
 test_save_unwritable (void)
 {
   ReteModel *model = rete_model_new (make_net (1, 1, 1, TRUE, 1, 5));
@@ -862,6 +881,7 @@ main (int argc, char **argv)
   for (gsize i = 0; i < G_N_ELEMENTS (bad_files); i++)
     g_test_add_data_func (bad_files[i].path, &bad_files[i], test_bad_file);
   g_test_add_func ("/nn/model/bad/missing-file", test_bad_file_missing);
+  g_test_add_func ("/nn/model/bad/huge-file", test_bad_file_huge);
   g_test_add_func ("/nn/model/bad/unwritable-folder", test_save_unwritable);
   g_test_add_func ("/nn/learned/map-matches-network-and-fov", test_learned_map);
   g_test_add_func ("/nn/learned/rgb-model", test_learned_rgb_model);
