@@ -7,8 +7,9 @@
  * Fraz 2012 reports for the second observer on CHASE_DB1 accuracy 0.9545, sensitivity 0.7425,
  * specificity 0.9793 (from memory; their FOV masks and image set — all 28 — differ from ours).
  *
- * Images: all 20 of the training part by default (about 40 s on two free cores; the filters'
- * own time is printed); RETE_CHASE_IMAGES=n takes the first n of the fixed list instead.
+ * Images: all 20 of the training part by default (41 s of CPU time in all, so about 25 s on two
+ * free cores; the filters' own time is printed); RETE_CHASE_IMAGES=n takes the first n of the
+ * fixed list instead.
  * Floors: each method's mean AUC must stay above a floor a little below the value measured when
  * the defaults were tuned (tests/CHASE-CLASSICAL.md has the table and the command).
  * Skips with a message when ../shared/data/chase_db1 is absent.
@@ -32,7 +33,7 @@ static const char *const method_names[N_METHODS] = {
   "Frangi (Frangi 1998)", "matched filter (Chaudhuri 1989)", "MF-FDOG (Zhang 2010)",
   "line detector (Nguyen 2013)" };
 /* Mean AUC floors: measured on all 20 images (tests/CHASE-CLASSICAL.md) minus about 0.01. */
-static const double auc_floor[N_METHODS] = { 0.92, 0.92, 0.91, 0.93 };
+static const double auc_floor[N_METHODS] = { 0.915, 0.92, 0.915, 0.93 };
 
 typedef struct {
   char name[32];
@@ -180,7 +181,7 @@ test_classical_auc (void)
   g_test_message ("| **mean of %d** | **%.4f** | **%.4f** | **%.4f** | **%.4f** |", n_done,
                   mean[0], mean[1], mean[2], mean[3]);
   for (int m = 0; m < N_METHODS; m++)
-    g_test_message ("%s: mean AUC %.4f (range %.4f..%.4f, floor %.2f), %.0f ms per image",
+    g_test_message ("%s: mean AUC %.4f (range %.4f..%.4f, floor %.3f), %.0f ms per image",
                     method_names[m], mean[m], lo[m], hi[m], auc_floor[m], ms[m]);
   for (int m = 0; m < N_METHODS; m++)
     g_assert_cmpfloat (mean[m], >=, auc_floor[m]);
@@ -200,9 +201,11 @@ test_second_observer (void)
     }
   g_test_message ("second observer against the first, inside the FOV, mean of %d images: "
                   "accuracy %.4f, sensitivity %.4f, specificity %.4f (Fraz 2012, from memory: "
-                  "0.9545, 0.7425, 0.9793; asked: accuracy within 0.02 of 0.95)", n_done, acc,
-                  sens, spec);
-  g_assert_cmpfloat (fabs (acc - 0.95), <=, 0.02);
+                  "0.9545, 0.7425, 0.9793; asked: within 0.01, 0.03 and 0.01 of these)", n_done,
+                  acc, sens, spec);
+  g_assert_cmpfloat (fabs (acc - 0.9545), <=, 0.01);
+  g_assert_cmpfloat (fabs (sens - 0.7425), <=, 0.03);
+  g_assert_cmpfloat (fabs (spec - 0.9793), <=, 0.01);
 }
 
 int

@@ -72,7 +72,7 @@ frangi_scales (const ReteFrangiParams *p, double *scales, GError **error)
 
 typedef struct {
   int width, height;
-  const float *t0, *t1, *t2;    /* per-scale working planes (see the two Hessian methods) */
+  float *t0, *t1, *t2;          /* per-scale working planes (see the two Hessian methods) */
   float *rb2, *s2;              /* per pixel: Rb^2, and S^2 (-1 where the sign rules out) */
   float *row_max_s2;            /* (height) largest S^2 of each row */
   double sigma, scale2;         /* scale and its normalisation sigma^2 */
@@ -111,6 +111,19 @@ gradient_column_row (const float *plane, int w, int h, int y, float *out)
   float f = (y == 0 || y == h - 1) ? 1.0f : 0.5f;
   for (int x = 0; x < w; x++)
     out[x] = f * (down[x] - up[x]);
+}
+
+/* numpy.gradient of the blur t0 along x into t1 and along y into t2, rows first..last. */
+static void
+gradient_rows (int first, int last, gpointer data)
+{
+  Frangi *f = data;
+  int w = f->width, h = f->height;
+  for (int y = first; y < last; y++)
+    {
+      gradient_row (f->t0 + (gsize) y * w, f->t1 + (gsize) y * w, w);
+      gradient_column_row (f->t0, w, h, y, f->t2 + (gsize) y * w);
+    }
 }
 
 /* Pass 1 of a scale: the Hessian of rows first..last, its eigenvalues, Rb^2 and S^2. */
@@ -229,11 +242,7 @@ rete_frangi_raw (const ReteImage *grey, const ReteFrangiParams *params, GError *
           /* skimage 0.19: blur (t0), then numpy.gradient along x (t1) and y (t2) */
           rete_convolve_rows (grey->data, t2, w, h, 1, k0, r, +1);
           rete_convolve_columns (t2, t0, w, h, 1, k0, r, +1);
-          for (int y = 0; y < h; y++)
-            {
-              gradient_row (t0 + (gsize) y * w, t1 + (gsize) y * w, w);
-              gradient_column_row (t0, w, h, y, t2 + (gsize) y * w);
-            }
+          rete_parallel_for (h, gradient_rows, &f);
         }
       else
         {
