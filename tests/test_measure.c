@@ -325,6 +325,43 @@ test_calibre_known_width (void)
                   worst, CALIBRE_TOLERANCE);
 }
 
+/* The synthetic fundus generator knows the width of the vessel at every vessel pixel. Mean
+ * calibre (length-weighted over segments, ends left out) against the mean true width under the
+ * skeleton (junction pixels left out, where the widest vessel decides): within 0.5 px, the
+ * issue's tolerance (measured: see the message). */
+static void
+test_calibre_synthetic_fundus (void)
+{
+  for (guint64 seed = 1; seed <= 3; seed++)
+    {
+      ReteSynthParams params;
+      rete_synth_params_init (&params);
+      params.seed = seed;
+      params.width = 999;
+      params.height = 960;
+      ReteSynthTruth truth = { 0 };
+      GError *error = NULL;
+      g_assert_true (rete_synth_fundus_truth (&params, &truth, &error));
+      g_assert_no_error (error);
+      g_autoptr (ReteMeasurements) m = measure (truth.vessels, 10);
+      double sum = 0;
+      gsize n = 0;
+      for (gsize i = 0; i < rete_image_n_pixels (truth.vessels); i++)
+        if (m->skeleton->data[i] > 0.5f && m->point_type->data[i] != RETE_POINT_JUNCTION
+            && truth.widths->data[i] > 0)
+          {
+            sum += truth.widths->data[i];
+            n++;
+          }
+      double true_mean = sum / MAX (n, 1);
+      g_test_message ("synthetic fundus seed %" G_GUINT64_FORMAT ": mean calibre %.3f px, true "
+                      "width under the skeleton %.3f px (%d segments)", seed, m->mean_calibre,
+                      true_mean, m->n_segments);
+      CHECK_CLOSE ("synthetic fundus mean calibre (px)", m->mean_calibre, true_mean, 0.5);
+      rete_synth_truth_clear (&truth);
+    }
+}
+
 /* ---- fractal dimension of known shapes ---- */
 
 static guint8 *
@@ -848,6 +885,7 @@ main (int argc, char **argv)
   g_test_add_func ("/measure/skeleton/keeps-diagonal-vessels", test_skeleton_diagonal);
   g_test_add_func ("/measure/distance/matches-scipy", test_distance_scipy);
   g_test_add_func ("/measure/calibre/known-width", test_calibre_known_width);
+  g_test_add_func ("/measure/calibre/synthetic-fundus", test_calibre_synthetic_fundus);
   for (guint i = 0; i < G_N_ELEMENTS (shapes); i++)
     {
       g_autofree char *path = g_strdup_printf ("/measure/fractal/%s", shapes[i].name);
