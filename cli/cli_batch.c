@@ -124,12 +124,21 @@ rete_cli_progress_done (ReteCliProgress *p, const char *name, gboolean ok, const
   else
     {
       p->n_failed++;
-      g_ptr_array_add (p->failures, g_strdup_printf ("%s: %s", name, message));
+      /* Messages from the I/O layer start with the file name already. */
+      if (g_str_has_prefix (message, name))
+        g_ptr_array_add (p->failures, g_strdup (message));
+      else
+        g_ptr_array_add (p->failures, g_strdup_printf ("%s: %s", name, message));
     }
   clear_line (p);
   int k = p->n_done + p->n_failed;
   if (!ok)
-    fprintf (stderr, "[%d/%d] %s: FAILED: %s\n", k, p->n_items, name, message);
+    {
+      if (g_str_has_prefix (message, name))
+        fprintf (stderr, "[%d/%d] FAILED: %s\n", k, p->n_items, message);
+      else
+        fprintf (stderr, "[%d/%d] FAILED: %s: %s\n", k, p->n_items, name, message);
+    }
   else if (!p->quiet)
     fprintf (stderr, "[%d/%d] %s: %s%s(%.1f s)\n", k, p->n_items, name, message ? message : "ok",
              message ? " " : " ", seconds);

@@ -5,7 +5,9 @@
 #include "rete_cli.h"
 
 #include <math.h>
+#include <stdarg.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "rete_nn.h"
@@ -121,6 +123,40 @@ vessels_one (int index, const ReteCliItem *item, gpointer user_data, GError **er
   return FALSE;
 }
 
+/* A dry run on a small made-up photograph, so that settings the library refuses (a bad
+ * combination the option checks above let through) are a usage error before any photograph
+ * is read, not a failure of every photograph. */
+static gboolean
+check_settings (const ReteVesselParams *params, GError **error)
+{
+  const int side = 256;
+  g_autoptr (ReteImage) photo = rete_image_new (side, side, 3, NULL);
+  g_autoptr (ReteImage) fov = rete_image_new (side, side, 1, NULL);
+  if (photo == NULL || fov == NULL)
+    return TRUE;
+  static const float fundus[3] = { 0.8f, 0.3f, 0.07f };
+  for (int y = 0; y < side; y++)
+    for (int x = 0; x < side; x++)
+      {
+        gsize i = (gsize) y * side + x;
+        gboolean vessel = abs (x - y) < 3 || abs (x + y - side) < 2;
+        for (int c = 0; c < 3; c++)
+          photo->data[(gsize) c * side * side + i] = fundus[c] * (vessel ? 0.5f : 1.0f);
+        fov->data[i] = 1.0f;
+      }
+  ReteVesselResult result = { 0 };
+  GError *local = NULL;
+  gboolean ok = rete_vessel_run (photo, fov, params, &result, NULL, NULL, &local);
+  rete_vessel_result_clear (&result);
+  if (ok || local->code != RETE_ERROR_INVALID_ARGUMENT)
+    {
+      g_clear_error (&local);
+      return TRUE;
+    }
+  g_propagate_error (error, local);
+  return FALSE;
+}
+
 static char *
 report_csv (const VesselRun *run, const char *settings)
 {
@@ -142,6 +178,18 @@ report_csv (const VesselRun *run, const char *settings)
                               threshold, fraction, row->fov_pixels, row->seconds, status);
     }
   return g_string_free (csv, FALSE);
+}
+
+/* An option description holding a library default (kept alive in `keep`). */
+static const char *
+D (GPtrArray *keep, const char *format, ...)
+{
+  va_list args;
+  va_start (args, format);
+  char *text = g_strdup_vprintf (format, args);
+  va_end (args);
+  g_ptr_array_add (keep, text);
+  return text;
 }
 
 static const char description[] =
@@ -173,6 +221,10 @@ rete_cmd_vessels (int argc, char **argv)
   int fdog_window = -1, line_window = -1, line_step = -1, bits = 16, jobs = 0;
   gboolean no_clahe = FALSE, write_fov = FALSE, no_probability = FALSE, recursive = FALSE;
   gboolean skip_existing = FALSE, quiet = FALSE;
+  /* Defaults in --help come from the library, so they cannot drift from it. */
+  ReteVesselParams d;
+  rete_vessel_params_init (&d);
+  g_autoptr (GPtrArray) keep = g_ptr_array_new_with_free_func (g_free);
   GOptionEntry entries[] = {
     { "method", 'm', 0, G_OPTION_ARG_STRING, &method,
       "learned, frangi, matched, matched-fdog or line (default learned)", "METHOD" },
@@ -180,42 +232,42 @@ rete_cmd_vessels (int argc, char **argv)
       "Model for the learned method: a shipped name or a .safetensors file (default standard)",
       "NAME|FILE" },
     { "threshold", 't', 0, G_OPTION_ARG_STRING, &threshold,
-      "otsu, fixed:LEVEL or fraction:F (default otsu)", "RULE" },
+      D (keep, "otsu, fixed:LEVEL or fraction:F (default %s)", rete_threshold_method_name (d.binary.method)), "RULE" },
     { "min-component", 0, 0, G_OPTION_ARG_INT, &min_component,
-      "Remove vessel pieces smaller than this many pixels (default 30; 0 keeps all)", "PX" },
+      D (keep, "Remove vessel pieces smaller than this many pixels (default %" G_GSIZE_FORMAT "; 0 keeps all)", d.binary.min_component), "PX" },
     { "fill-holes", 0, 0, G_OPTION_ARG_INT, &fill_holes,
-      "Fill holes in vessels smaller than this many pixels (default 10; 0 none)", "PX" },
+      D (keep, "Fill holes in vessels smaller than this many pixels (default %" G_GSIZE_FORMAT "; 0 none)", d.binary.max_hole), "PX" },
     { "fov", 0, 0, G_OPTION_ARG_FILENAME, &fov,
       "Given FOV mask: one file for all, or a folder with NAME.png / NAME_mask.png per "
       "photograph (default: detected)", "FILE|DIR" },
     { "fov-rim", 0, 0, G_OPTION_ARG_DOUBLE, &fov_rim,
-      "Pixels taken off the rim of a detected FOV (default 0)", "PX" },
+      D (keep, "Pixels taken off the rim of a detected FOV (default %g)", d.fov.erode_rim), "PX" },
     { "channel", 0, 0, G_OPTION_ARG_STRING, &channel,
-      "Classical methods: green, luminance, red or blue (default green)", "CHANNEL" },
+      D (keep, "Classical methods: green, luminance, red or blue (default %s)", rete_channel_name (d.channel)), "CHANNEL" },
     { "no-clahe", 0, 0, G_OPTION_ARG_NONE, &no_clahe,
       "Classical methods: no CLAHE before the filter", NULL },
     { "clahe-clip", 0, 0, G_OPTION_ARG_DOUBLE, &clahe_clip,
-      "CLAHE clip limit in (0,1] (default 0.01)", "C" },
+      D (keep, "CLAHE clip limit in (0,1] (default %g)", d.clahe.clip_limit), "C" },
     { "clahe-region", 0, 0, G_OPTION_ARG_INT, &clahe_region,
       "CLAHE contextual region side in pixels (default 1/8 of the image)", "PX" },
     { "scales", 0, 0, G_OPTION_ARG_STRING, &scales,
-      "Frangi: scales sigma MIN:MAX:STEP in pixels (default 1:4:1)", "MIN:MAX:STEP" },
-    { "beta", 0, 0, G_OPTION_ARG_DOUBLE, &beta, "Frangi: blob-versus-line beta (default 0.5)", "B" },
+      D (keep, "Frangi: scales sigma MIN:MAX:STEP in pixels (default %g:%g:%g)", d.frangi.sigma_min, d.frangi.sigma_max, d.frangi.sigma_step), "MIN:MAX:STEP" },
+    { "beta", 0, 0, G_OPTION_ARG_DOUBLE, &beta, D (keep, "Frangi: blob-versus-line beta (default %g)", d.frangi.beta), "B" },
     { "structure-c", 0, 0, G_OPTION_ARG_DOUBLE, &frangi_c,
-      "Frangi: structure sensitivity c (default 0: half the largest Hessian norm)", "C" },
+      D (keep, "Frangi: structure sensitivity c (default %g; 0 = half the largest Hessian norm)", d.frangi.c), "C" },
     { "matched-sigma", 0, 0, G_OPTION_ARG_DOUBLE, &matched_sigma,
-      "Matched filter: vessel cross-section sigma in pixels (default 1.5)", "S" },
+      D (keep, "Matched filter: vessel cross-section sigma in pixels (default %g)", d.matched.sigma), "S" },
     { "matched-length", 0, 0, G_OPTION_ARG_DOUBLE, &matched_length,
-      "Matched filter: vessel piece length L in pixels (default 9)", "L" },
+      D (keep, "Matched filter: vessel piece length L in pixels (default %g)", d.matched.length), "L" },
     { "orientations", 0, 0, G_OPTION_ARG_INT, &orientations,
-      "Matched filter and line detector: angles in [0, 180°) (default 12)", "N" },
+      D (keep, "Matched filter and line detector: angles in [0, 180°) (default %d)", d.matched.n_orientations), "N" },
     { "fdog-window", 0, 0, G_OPTION_ARG_INT, &fdog_window,
-      "Matched FDOG: side of the local-mean window (default 31)", "PX" },
-    { "fdog-c", 0, 0, G_OPTION_ARG_DOUBLE, &fdog_c, "Matched FDOG: weight c (default 2.3)", "C" },
+      D (keep, "Matched FDOG: side of the local-mean window (default %d)", d.matched.fdog_window), "PX" },
+    { "fdog-c", 0, 0, G_OPTION_ARG_DOUBLE, &fdog_c, D (keep, "Matched FDOG: weight c (default %g)", d.matched.fdog_c), "C" },
     { "line-window", 0, 0, G_OPTION_ARG_INT, &line_window,
-      "Line detector: window W, odd (default 15)", "PX" },
+      D (keep, "Line detector: window W, odd (default %d)", d.line.window), "PX" },
     { "line-step", 0, 0, G_OPTION_ARG_INT, &line_step,
-      "Line detector: step between line lengths (default 2)", "PX" },
+      D (keep, "Line detector: step between line lengths (default %d)", d.line.step), "PX" },
     { "output-dir", 'o', 0, G_OPTION_ARG_FILENAME, &output_dir,
       "Folder for the maps (default: the current folder)", "DIR" },
     { "write-fov", 0, 0, G_OPTION_ARG_NONE, &write_fov, "Also write NAME-fov.png", NULL },
@@ -264,8 +316,8 @@ rete_cmd_vessels (int argc, char **argv)
       || (!isnan (fov_rim) && !(fov_rim >= 0 && fov_rim <= 1000))
       || (!isnan (clahe_clip) && !(clahe_clip > 0 && clahe_clip <= 1))
       || (!isnan (beta) && !(beta > 0)) || (!isnan (frangi_c) && !(frangi_c >= 0))
-      || (!isnan (matched_sigma) && !(matched_sigma > 0 && matched_sigma <= 50))
-      || (!isnan (matched_length) && !(matched_length >= 1 && matched_length <= 200))
+      || (!isnan (matched_sigma) && !(matched_sigma > 0))
+      || (!isnan (matched_length) && !(matched_length > 0))
       || (!isnan (fdog_c) && !(fdog_c >= 0)) || (orientations != -1 && (orientations < 1 || orientations > 180))
       || (line_window != -1 && (line_window < 3 || line_window % 2 == 0))
       || (line_step != -1 && line_step < 1) || (fdog_window != -1 && fdog_window < 3)
@@ -274,8 +326,8 @@ rete_cmd_vessels (int argc, char **argv)
       rete_cli_usage_error (command,
                             "a value is out of range: --bits 8 or 16; --fov-rim 0–1000; "
                             "--clahe-clip in (0,1]; --clahe-region at least 8; --beta above 0; "
-                            "--structure-c, --fdog-c at least 0; --matched-sigma (0,50]; "
-                            "--matched-length 1–200; --orientations 1–180; --line-window odd, "
+                            "--structure-c, --fdog-c at least 0; --matched-sigma and "
+                            "--matched-length above 0; --orientations 1–180; --line-window odd, "
                             "at least 3; --line-step, --min-component, --fill-holes at least "
                             "0 (1 for the step); --jobs at least 0");
       goto out;
@@ -317,6 +369,12 @@ rete_cmd_vessels (int argc, char **argv)
   else if (model_name != NULL)
     {
       rete_cli_usage_error (command, "--model is for --method learned, not %s", method);
+      goto out;
+    }
+
+  if (!check_settings (p, &error))
+    {
+      rete_cli_usage_error (command, "%s", error->message);
       goto out;
     }
 

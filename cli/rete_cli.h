@@ -138,7 +138,7 @@ ReteImage *rete_cli_load_grey (const char *path, const char *what, GError **erro
 
 typedef struct _ReteCliProgress ReteCliProgress;
 /* Progress of `n_items` items on stderr: a line per finished item ("[3/20] name: ok, 1.2 s"
- * or "[4/20] name: FAILED: reason"); on a terminal also a live line with the fraction of the
+ * or "[4/20] FAILED: name: reason"); on a terminal also a live line with the fraction of the
  * items in hand. quiet: only failures and the summary. */
 ReteCliProgress *rete_cli_progress_new (const char *verb, int n_items, gboolean quiet);
 void rete_cli_progress_free (ReteCliProgress *progress);
