@@ -369,6 +369,20 @@ test_erode_matches_scipy (void)
 }
 
 static void
+test_erode_thread_count (void)
+{
+  g_autoptr (ReteImage) mask = blobby_mask (211, 150);
+  int saved = rete_thread_count ();
+  rete_set_thread_count (1);
+  g_autoptr (ReteImage) one = rete_fov_erode (mask, 6.5, NULL);
+  rete_set_thread_count (3);
+  g_autoptr (ReteImage) three = rete_fov_erode (mask, 6.5, NULL);
+  rete_set_thread_count (saved);
+  gsize size = rete_image_n_pixels (mask) * sizeof (float);
+  g_assert_cmpmem (one->data, size, three->data, size);
+}
+
+static void
 test_erode_bad_input (void)
 {
   g_autoptr (ReteImage) colour = rete_image_new (10, 10, 3, NULL);
@@ -428,6 +442,7 @@ main (int argc, char **argv)
   g_test_add_func ("/fov/detect/chase-db1", test_chase_db1);
   g_test_add_func ("/fov/erode/matches-brute-force", test_erode_matches_brute_force);
   g_test_add_func ("/fov/erode/matches-scipy", test_erode_matches_scipy);
+  g_test_add_func ("/fov/erode/same-for-any-thread-count", test_erode_thread_count);
   g_test_add_func ("/fov/erode/bad-input", test_erode_bad_input);
   g_test_add_func ("/fov/dice", test_dice);
   return g_test_run ();

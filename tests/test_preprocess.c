@@ -324,6 +324,27 @@ test_clahe_small_fov (void)
     }
 }
 
+/* Rows and tiles are shared out between threads: the result must not depend on how many. */
+static void
+test_clahe_thread_count (void)
+{
+  g_autoptr (ReteImage) fov = NULL;
+  g_autoptr (ReteImage) image = make_fundus (357, 0.2, 9, &fov);
+  ReteClaheParams params;
+  rete_clahe_params_init (&params);
+  int saved = rete_thread_count ();
+  rete_set_thread_count (1);
+  g_autoptr (ReteImage) one = rete_clahe (image, fov, &params, NULL);
+  g_autoptr (ReteImage) one_plain = rete_clahe (image, NULL, &params, NULL);
+  rete_set_thread_count (3);
+  g_autoptr (ReteImage) three = rete_clahe (image, fov, &params, NULL);
+  g_autoptr (ReteImage) three_plain = rete_clahe (image, NULL, &params, NULL);
+  rete_set_thread_count (saved);
+  gsize size = rete_image_n_pixels (image) * sizeof (float);
+  g_assert_cmpmem (one->data, size, three->data, size);
+  g_assert_cmpmem (one_plain->data, size, three_plain->data, size);
+}
+
 static void
 test_clahe_bad_input (void)
 {
@@ -520,6 +541,7 @@ main (int argc, char **argv)
   g_test_add_func ("/preprocess/clahe/matches-skimage-on-chase", test_clahe_matches_skimage_on_chase);
   g_test_add_func ("/preprocess/clahe/inside-fov", test_clahe_inside_fov);
   g_test_add_func ("/preprocess/clahe/small-fov", test_clahe_small_fov);
+  g_test_add_func ("/preprocess/clahe/same-for-any-thread-count", test_clahe_thread_count);
   g_test_add_func ("/preprocess/clahe/bad-input", test_clahe_bad_input);
   g_test_add_func ("/preprocess/background/matches-scipy", test_background_matches_scipy);
   g_test_add_func ("/preprocess/background/bad-input", test_background_bad_input);

@@ -28,7 +28,6 @@
  * This file holds the pixel passes (threaded by rows); clahe_tiles.c the histograms.
  */
 #include "clahe_private.h"
-#include "rete_fov.h"
 
 #include <math.h>
 #include <string.h>
