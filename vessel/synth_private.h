@@ -100,6 +100,17 @@ void synth_grow_trees (const ReteSynthParams *params, const SynthLayout *layout,
 void synth_render_vessels (const GArray *pieces, int width, int height, float *truth,
                            float *width_map, float *opacity, guint8 *artery);
 
+/* Bright lesions: soft weights for the photograph in `weight`, exact truth in `truth`
+ * (width*height arrays, zero on entry). */
+void synth_draw_lesions (const ReteSynthParams *params, const SynthLayout *layout, float *weight,
+                         float *truth);
+
+/* Paints the photograph (3 channels) from the layout, the vessels' opacity and type, and the
+ * lesions' weights. */
+void synth_paint_photo (const ReteSynthParams *params, const SynthLayout *layout,
+                        const float *opacity, const guint8 *artery, const float *lesion_weight,
+                        ReteImage *photo);
+
 /* Replaces each 8x8 block of the photograph (3 channels, [0,1]) by its JPEG-like
  * reconstruction at `quality` (1..100). */
 void synth_jpeg_quantise (ReteImage *photo, int quality);
