@@ -145,7 +145,8 @@ rete_sweep_group (ReteSweep *s, float score, guint64 pos, guint64 neg, guint64 t
    * against the positives tied with it (Hanley & McNeil, Radiology 143, 1982). */
   s->auc_twice_numerator += neg * (2 * tp_above + pos);
   /* average precision = sum over thresholds of (R_k - R_{k-1}) P_k (sklearn's definition) */
-  s->ap_sum += (double) pos * ((double) tp / (double) (tp + fp)); /* 0 when pos = 0 */
+  if (pos > 0)
+    s->ap_sum += (double) pos * ((double) tp / (double) (tp + fp));
   if (!s->has_first)
     {
       s->has_first = TRUE;

@@ -41,7 +41,11 @@ typedef struct {
   double best_youden_threshold; /* threshold that maximises Youden's J = sens + spec - 1 */
   ReteRates best_youden_rates;
   /* ROC curve: one point per distinct score (at most `max_roc_points`, evenly thinned),
-   * from (0,0) to (1,1). Arrays of n_roc_points values, owned. */
+   * from (0,0) to (1,1). Arrays of n_roc_points values, owned. Point k is the rates when
+   * pixels with score >= roc_threshold[k] are vessel. Thinning (more distinct scores than
+   * max_roc_points - 1): point j goes to the first score, from the highest down, at which
+   * j/(max_roc_points - 1) of the pixels inside the mask are marked; a score that meets
+   * several such targets gives one point, so the curve may hold fewer points. */
   int n_roc_points;
   double *roc_false_positive_rate;
   double *roc_true_positive_rate;
@@ -63,8 +67,8 @@ typedef struct {
  * Details: a reference that is not 0/1 is thresholded at 0.5 (n_reference_not_binary counts
  * such values); NaN or infinity in the scores or the reference inside the mask is an error
  * naming the first pixel (outside the mask such values are ignored). max_roc_points: 0 = no
- * curve (arrays NULL), >= 2 = at most that many points, evenly thinned over the distinct
- * scores, first (0,0) and last (1,1) always kept; 1 or negative is an error. The first
+ * curve (arrays NULL), >= 2 = at most that many points (thinned as said above), first (0,0)
+ * and last (1,1) always kept; 1 or negative is an error. The first
  * point's threshold is max_score + 1 (as sklearn 1.2's roc_curve). A rate of the curve whose
  * class is absent is NaN. Best thresholds are among the distinct scores; among equal values
  * the higher threshold wins; they are NaN (rates NaN) when undefined: Dice without reference
