@@ -11,24 +11,7 @@
 #include <string.h>
 
 #include "rete_nn.h"
-#include "rete_vessel.h"
-
-typedef struct {
-  double threshold, vessel_fraction, seconds;
-  gsize fov_pixels;
-  char *error;
-} VesselRow;
-
-typedef struct {
-  GPtrArray *inputs;
-  ReteVesselParams params;
-  char *fov_source;         /* file or folder of given FOV masks, or NULL */
-  char *output_dir;
-  gboolean write_probability, write_fov, skip_existing;
-  int bit_depth;
-  ReteCliGuard *guard;
-  VesselRow *rows;
-} VesselRun;
+#include "vessels_support.h"
 
 static const char *const fov_suffixes[] = { "-fov", "_mask", "_fov", "-mask", NULL };
 
@@ -121,63 +104,6 @@ vessels_one (int index, const ReteCliItem *item, gpointer user_data, GError **er
   row->error = g_strdup (local ? local->message : "failed");
   g_propagate_error (error, local);
   return FALSE;
-}
-
-/* A dry run on a small made-up photograph, so that settings the library refuses (a bad
- * combination the option checks above let through) are a usage error before any photograph
- * is read, not a failure of every photograph. */
-static gboolean
-check_settings (const ReteVesselParams *params, GError **error)
-{
-  const int side = 256;
-  g_autoptr (ReteImage) photo = rete_image_new (side, side, 3, NULL);
-  g_autoptr (ReteImage) fov = rete_image_new (side, side, 1, NULL);
-  if (photo == NULL || fov == NULL)
-    return TRUE;
-  static const float fundus[3] = { 0.8f, 0.3f, 0.07f };
-  for (int y = 0; y < side; y++)
-    for (int x = 0; x < side; x++)
-      {
-        gsize i = (gsize) y * side + x;
-        gboolean vessel = abs (x - y) < 3 || abs (x + y - side) < 2;
-        for (int c = 0; c < 3; c++)
-          photo->data[(gsize) c * side * side + i] = fundus[c] * (vessel ? 0.5f : 1.0f);
-        fov->data[i] = 1.0f;
-      }
-  ReteVesselResult result = { 0 };
-  GError *local = NULL;
-  gboolean ok = rete_vessel_run (photo, fov, params, &result, NULL, NULL, &local);
-  rete_vessel_result_clear (&result);
-  if (ok || local->code != RETE_ERROR_INVALID_ARGUMENT)
-    {
-      g_clear_error (&local);
-      return TRUE;
-    }
-  g_propagate_error (error, local);
-  return FALSE;
-}
-
-static char *
-report_csv (const VesselRun *run, const char *settings)
-{
-  GString *csv = g_string_new ("photograph,method,settings,threshold,vessel_fraction,"
-                               "fov_pixels,seconds,status\n");
-  for (guint i = 0; i < run->inputs->len; i++)
-    {
-      const ReteCliInput *input = run->inputs->pdata[i];
-      const VesselRow *row = &run->rows[i];
-      char threshold[G_ASCII_DTOSTR_BUF_SIZE] = "", fraction[G_ASCII_DTOSTR_BUF_SIZE] = "";
-      if (isfinite (row->threshold))
-        g_ascii_formatd (threshold, sizeof threshold, "%.6g", row->threshold);
-      if (isfinite (row->vessel_fraction))
-        g_ascii_formatd (fraction, sizeof fraction, "%.6f", row->vessel_fraction);
-      g_autofree char *status = g_strdup (row->error ? row->error : "ok");
-      g_strdelimit (status, "\"", '\'');
-      g_string_append_printf (csv, "\"%s\",%s,\"%s\",%s,%s,%" G_GSIZE_FORMAT ",%.2f,\"%s\"\n",
-                              input->path, rete_method_name (run->params.method), settings,
-                              threshold, fraction, row->fov_pixels, row->seconds, status);
-    }
-  return g_string_free (csv, FALSE);
 }
 
 /* An option description holding a library default (kept alive in `keep`). */
@@ -372,7 +298,7 @@ rete_cmd_vessels (int argc, char **argv)
       goto out;
     }
 
-  if (!check_settings (p, &error))
+  if (!vessels_check_settings (p, &error))
     {
       rete_cli_usage_error (command, "%s", error->message);
       goto out;
@@ -400,8 +326,18 @@ rete_cmd_vessels (int argc, char **argv)
       rete_cli_guard_add (run.guard, input->path);
       names[i] = input->path;
     }
+  /* Given FOV masks are inputs too, a folder of them included. */
   if (fov != NULL && !g_file_test (fov, G_FILE_TEST_IS_DIR))
     rete_cli_guard_add (run.guard, fov);
+  else if (fov != NULL)
+    {
+      char *folder_args[] = { fov, NULL };
+      GPtrArray *masks = rete_cli_expand_inputs (folder_args, TRUE, NULL, NULL);
+      for (guint i = 0; masks && i < masks->len; i++)
+        rete_cli_guard_add (run.guard, ((ReteCliInput *) masks->pdata[i])->path);
+      if (masks)
+        g_ptr_array_free (masks, TRUE);
+    }
   settings = rete_vessel_params_describe (p);
   if (!quiet)
     fprintf (stderr, "%s: %s, threshold %s, %u photograph%s\n", command, settings,
@@ -414,7 +350,7 @@ rete_cmd_vessels (int argc, char **argv)
   status = failed > 0 ? RETE_EXIT_FAILED : RETE_EXIT_OK;
   if (report != NULL)
     {
-      g_autofree char *csv = report_csv (&run, settings);
+      g_autofree char *csv = vessels_report_csv (&run, settings);
       if (!rete_cli_write_text (run.guard, report, csv, &error))
         {
           fprintf (stderr, "%s: %s\n", command, error->message);

@@ -22,13 +22,14 @@ static const ReteCommand commands[] = {
     "agreement of vessel maps with references: AUC, sensitivity, specificity, Dice, ROC plot" },
 #ifdef HAVE_CMD_MEASURE
   { "measure", rete_cmd_measure,
-    "vessel measurements of binary maps: density, calibre, tortuosity, branching" },
+    "measurements of binary vessel maps: density, length, branching, calibre, tortuosity,\n"
+    "             fractal dimension" },
 #endif
 #ifdef HAVE_CMD_TRAIN
   { "train", rete_cmd_train, "train a U-Net model on photographs and their vessel maps" },
 #endif
 #ifdef HAVE_CMD_SWEEP
-  { "sweep", rete_cmd_sweep, "try a method's parameters against references and rank them" },
+  { "sweep", rete_cmd_sweep, "train a grid of U-Net sizes on your photographs and compare them" },
 #endif
   { "synth", rete_cmd_synth,
     "synthetic fundus photographs with exact vessel and FOV truth (invented data)" },
@@ -106,8 +107,14 @@ main (int argc, char **argv)
       if (name[0] == '-')
         return rete_cli_usage_error ("rete", "unknown option %s; a command comes first "
                                      "(rete COMMAND [OPTION…])", name);
-      return rete_cli_usage_error ("rete", "no command named '%s' (commands: vessels, fov, "
-                                   "agreement, synth, ...)", name);
+    {
+      GString *names = g_string_new (NULL);
+      for (gsize i = 0; i < G_N_ELEMENTS (commands); i++)
+        g_string_append_printf (names, "%s%s", i ? ", " : "", commands[i].name);
+      rete_cli_usage_error ("rete", "no command named '%s' (commands: %s)", name, names->str);
+      g_string_free (names, TRUE);
+      return RETE_EXIT_USAGE;
+    }
     }
   /* The command sees argv[0] = "rete <name>", so that its --help and errors say so. */
   char **sub_argv = g_new0 (char *, argc);
