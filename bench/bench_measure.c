@@ -1,9 +1,10 @@
 /* bench_measure.c — time of rete_measure (all measures: distance transform, box counting of
  * map and skeleton, thinning, pruning, graph, calibre, tortuosity, curvature, and the skeleton
  * and point-type images) on an HRF manual vessel map (Budai et al. 2013; 3504×2336, 8.2
- * megapixels, thresholded at 0.5), on the same map at half size (every other pixel: a quarter
- * of the pixels) and at double size (each pixel 2×2: four times the pixels), to show that the
- * time grows linearly with the pixels; plus the two pieces that have a Python reference,
+ * megapixels, thresholded at 0.5), on its central quarter and on the map tiled 2×2 (33
+ * megapixels), to show that the time grows linearly with the pixels at a given vessel width
+ * (thinning also grows with the width of the widest vessel: its iterations peel one pixel a
+ * side each); plus the two pieces that have a Python reference,
  * thinning and the exact distance transform, on the full map. Median of the runs.
  *
  *   bench-measure [map.png] [runs]    (default: $RETE_DATA_DIR/hrf_manual/01_h.png, 5 runs)
@@ -16,6 +17,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <sys/resource.h>
+#include <time.h>
 
 #include "rete_io.h"
 #include "rete_measure.h"
@@ -30,15 +32,26 @@ compare_doubles (const void *a, const void *b)
 typedef enum { ALL, SKELETON, DISTANCE } What;
 
 static double
-median_ms (const ReteImage *map, What what, int runs)
+cpu_ms (void)
 {
-  double *times = g_new (double, runs);
+  struct timespec t;
+  clock_gettime (CLOCK_PROCESS_CPUTIME_ID, &t);
+  return t.tv_sec * 1e3 + t.tv_nsec / 1e6;
+}
+
+/* Median wall time of the runs; *cpu (may be NULL) gets the median CPU time of the process
+ * (all threads), which a busy machine disturbs less. */
+static double
+median_ms (const ReteImage *map, What what, int runs, double *cpu)
+{
+  double *times = g_new (double, runs), *cpus = g_new (double, runs);
   ReteMeasureParams params;
   rete_measure_params_init (&params);
   for (int r = 0; r < runs; r++)
     {
       GError *error = NULL;
       gint64 start = g_get_monotonic_time ();
+      double cpu_start = cpu_ms ();
       if (what == ALL)
         {
           ReteMeasurements *m = rete_measure (map, NULL, &params, &error);
@@ -61,24 +74,37 @@ median_ms (const ReteImage *map, What what, int runs)
           rete_image_free (out);
         }
       times[r] = (g_get_monotonic_time () - start) / 1000.0;
+      cpus[r] = cpu_ms () - cpu_start;
     }
   qsort (times, runs, sizeof (double), compare_doubles);
+  qsort (cpus, runs, sizeof (double), compare_doubles);
   double median = times[runs / 2];
+  if (cpu != NULL)
+    *cpu = cpus[runs / 2];
   g_free (times);
+  g_free (cpus);
   return median;
 }
 
+/* The central quarter (half the width and height, where the vessels are as dense as on the
+ * whole map), or the map tiled 2×2: a quarter and four times the pixels with vessels of the
+ * same widths, so that only the pixel count changes. */
 static ReteImage *
-rescale (const ReteImage *map, int factor_up, int factor_down)
+quarter (const ReteImage *map)
 {
-  int w = map->width * factor_up / factor_down, h = map->height * factor_up / factor_down;
-  ReteImage *out = rete_image_new (w, h, 1, NULL);
+  ReteRect rect = { map->width / 4, map->height / 4, map->width / 2, map->height / 2 };
+  return rete_image_crop (map, &rect, NULL);
+}
+
+static ReteImage *
+tiled (const ReteImage *map)
+{
+  ReteImage *out = rete_image_new (2 * map->width, 2 * map->height, 1, NULL);
   if (out == NULL)
     return NULL;
-  for (int y = 0; y < h; y++)
-    for (int x = 0; x < w; x++)
-      out->data[(gsize) y * w + x] =
-        map->data[(gsize) (y * factor_down / factor_up) * map->width + x * factor_down / factor_up];
+  for (int ty = 0; ty < 2; ty++)
+    for (int tx = 0; tx < 2; tx++)
+      rete_image_paste (out, map, tx * map->width, ty * map->height, NULL);
   return out;
 }
 
@@ -102,28 +128,37 @@ main (int argc, char **argv)
       return 1;
     }
   rete_image_binarise (map, 0.5f);
-  ReteImage *half = rescale (map, 1, 2), *twice = rescale (map, 2, 1);
+  ReteImage *half = quarter (map), *twice = tiled (map);
   const ReteImage *sizes[] = { half, map, twice };
-  double ms[3];
+  double ms[3], cpu[3];
   for (int i = 0; i < 3; i++)
     {
       if (sizes[i] == NULL)
         continue;
-      median_ms (sizes[i], ALL, 1); /* warm the caches and the allocator */
-      ms[i] = median_ms (sizes[i], ALL, runs);
+      median_ms (sizes[i], ALL, 1, NULL); /* warm the caches and the allocator */
+      ms[i] = median_ms (sizes[i], ALL, runs, &cpu[i]);
       printf ("RESULT measure-all %dx%d %.1f\n", sizes[i]->width, sizes[i]->height, ms[i]);
+      printf ("# measure-all %dx%d: CPU time %.1f ms (all threads)\n", sizes[i]->width,
+              sizes[i]->height, cpu[i]);
       fflush (stdout);
     }
-  printf ("RESULT skeleton %dx%d %.1f\n", map->width, map->height, median_ms (map, SKELETON, runs));
-  printf ("RESULT distance %dx%d %.1f\n", map->width, map->height, median_ms (map, DISTANCE, runs));
+  double c;
+  printf ("RESULT skeleton %dx%d %.1f\n", map->width, map->height,
+          median_ms (map, SKELETON, runs, &c));
+  printf ("# skeleton: CPU time %.1f ms\n", c);
+  printf ("RESULT distance %dx%d %.1f\n", map->width, map->height,
+          median_ms (map, DISTANCE, runs, &c));
+  printf ("# distance: CPU time %.1f ms\n", c);
   /* time per pixel relative to the full map: 1 for linear growth */
   for (int i = 0; i < 3; i++)
     if (sizes[i] != NULL)
-      printf ("# %dx%d: %.1f ns per pixel (full map %.1f)\n", sizes[i]->width, sizes[i]->height,
-              1e6 * ms[i] / rete_image_n_pixels (sizes[i]), 1e6 * ms[1] / rete_image_n_pixels (map));
+      printf ("# %dx%d: %.1f ns per pixel wall, %.1f CPU (full map %.1f, %.1f)\n",
+              sizes[i]->width, sizes[i]->height, 1e6 * ms[i] / rete_image_n_pixels (sizes[i]),
+              1e6 * cpu[i] / rete_image_n_pixels (sizes[i]),
+              1e6 * ms[1] / rete_image_n_pixels (map), 1e6 * cpu[1] / rete_image_n_pixels (map));
   struct rusage usage;
   getrusage (RUSAGE_SELF, &usage);
-  printf ("# peak memory of the process %.0f MB (the double-size map alone is %.0f MB of floats)\n",
+  printf ("# peak memory of the process %.0f MB (the tiled map alone is %.0f MB of floats)\n",
           usage.ru_maxrss / 1024.0, twice ? rete_image_n_pixels (twice) * 4.0 / (1 << 20) : 0.0);
   rete_image_free (half);
   rete_image_free (twice);
