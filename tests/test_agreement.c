@@ -42,6 +42,8 @@ static const ReferenceCase reference_cases[] = {
   { "/vessel/agreement/matches-sklearn/uniform", 400, 250, SCORES_UNIFORM, FALSE, 0.5, 500, FALSE },
   { "/vessel/agreement/matches-sklearn/uniform-masked", 300, 200, SCORES_UNIFORM, TRUE, 0.37, 1000000, FALSE },
   { "/vessel/agreement/matches-sklearn/heavy-ties", 300, 200, SCORES_TENTHS, TRUE, 0.3, 100, FALSE },
+  /* 0.7 lies above the float 0.7f that the scores hold: those scores are not vessel */
+  { "/vessel/agreement/matches-sklearn/threshold-between-floats", 300, 200, SCORES_TENTHS, FALSE, 0.7, 5, FALSE },
   { "/vessel/agreement/matches-sklearn/8-bit", 999, 960, SCORES_8BIT, TRUE, 0.5, 300, FALSE },
   { "/vessel/agreement/matches-sklearn/uniform-chase-size", 999, 960, SCORES_UNIFORM, TRUE, 0.45, 512, FALSE },
   { "/vessel/agreement/matches-sklearn/16-bit", 400, 300, SCORES_16BIT, FALSE, 0.61, 1000, FALSE },
