@@ -240,21 +240,33 @@ rete_thin_remove_redundant (ReteByteMap *map)
   ensure_tables ();
   gsize n, s = map->stride, total = 0, removed;
   guint32 *list = foreground_list (map, &n);
-  if (list == NULL)
-    return 0;
   guint8 *p = map->pixels;
+  int w = map->width;
   do
     {
       removed = 0;
-      for (gsize k = 0; k < n; k++)
-        {
-          guint32 i = list[k];
-          if ((p[i] & 1) && simple_table[rete_neighbour_code (p, i, s)])
-            {
-              p[i] &= ~1u;
-              removed++;
-            }
-        }
+      if (list != NULL)
+        for (gsize k = 0; k < n; k++)
+          {
+            guint32 i = list[k];
+            if ((p[i] & 1) && simple_table[rete_neighbour_code (p, i, s)])
+              {
+                p[i] &= ~1u;
+                removed++;
+              }
+          }
+      else /* no memory for the list: the same pass in raster order, straight on the map */
+        for (int y = 0; y < map->height; y++)
+          {
+            guint32 base = rete_byte_map_index (map, 0, y);
+            for (int x = rete_next_set (p + base, 0, w); x < w;
+                 x = rete_next_set (p + base, x + 1, w))
+              if ((p[base + x] & 1) && simple_table[rete_neighbour_code (p, base + x, s)])
+                {
+                  p[base + x] &= ~1u;
+                  removed++;
+                }
+          }
       total += removed;
     }
   while (removed > 0);
