@@ -47,6 +47,8 @@ const int rete_neighbour_dy[8] = { -1, -1, -1, 0, 1, 1, 1, 0 };
 enum { P2 = 1, P3 = 2, P4 = 3, P5 = 4, P6 = 5, P7 = 6, P8 = 7, P9 = 0 };
 
 static guint8 zhang_suen_table[2][2][256]; /* [variant][subiteration][code]: 1 = delete */
+#define ACTIVE 2u /* in the thinning's list of border pixels */
+
 static guint8 simple_table[256]; /* 1 = simple corner of an L: deleted by the staircase pass */
 
 static int
@@ -193,16 +195,29 @@ rete_thin_zhang_suen (ReteByteMap *map, ReteThinning variant, ReteProgressFunc p
   gsize n, s = map->stride;
   guint32 *list = foreground_list (map, &n);
   guint8 *doomed = list && n <= G_MAXINT ? g_try_malloc (MAX (n, 1)) : NULL;
-  if (doomed == NULL)
+  guint32 *gone = doomed ? g_try_new (guint32, MAX (n, 1)) : NULL;
+  if (gone == NULL)
     {
       g_free (list);
+      g_free (doomed);
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
                    "not enough memory to thin a %d×%d map (%" G_GSIZE_FORMAT " vessel pixels)",
                    map->width, map->height, n);
       return FALSE;
     }
   guint8 *p = map->pixels;
-  gsize start = MAX (n, 1);
+  gsize start = MAX (n, 1), remaining = n;
+  /* Only pixels on the border can go (a pixel with 8 neighbours has B = 8): the list holds
+   * the border pixels (marked ACTIVE), and a pixel joins it when a neighbour is deleted. Each
+   * pixel joins at most once, so the list never outgrows the foreground. */
+  gsize active = 0;
+  for (gsize k = 0; k < n; k++)
+    if (rete_neighbour_code (p, list[k], s) != 0xffu)
+      {
+        p[list[k]] |= ACTIVE;
+        list[active++] = list[k];
+      }
+  n = active;
   gboolean removed = TRUE, ok = TRUE;
   Marking job = { p, s, list, doomed, NULL };
   while (removed && ok)
@@ -212,25 +227,43 @@ rete_thin_zhang_suen (ReteByteMap *map, ReteThinning variant, ReteProgressFunc p
         {
           job.table = zhang_suen_table[variant == RETE_THINNING_LU_WANG][sub];
           rete_parallel_for ((int) n, mark_range, &job);
-          /* delete and compact the list in one pass */
-          gsize kept = 0;
+          /* delete and compact the list in one pass, then wake the neighbours of the deleted */
+          gsize kept = 0, n_gone = 0;
           for (gsize k = 0; k < n; k++)
             if (doomed[k])
-              p[list[k]] = 0;
+              {
+                p[list[k]] = 0;
+                gone[n_gone++] = list[k];
+              }
             else
               list[kept++] = list[k];
-          removed |= kept < n;
+          for (gsize k = 0; k < n_gone; k++)
+            for (int d = 0; d < 8; d++)
+              {
+                guint32 j = gone[k] + rete_neighbour_dy[d] * (gssize) s + rete_neighbour_dx[d];
+                if (p[j] == 1u)
+                  {
+                    p[j] |= ACTIVE;
+                    list[kept++] = j;
+                  }
+              }
+          removed |= n_gone > 0;
+          remaining -= n_gone;
           n = kept;
         }
       if (progress != NULL
-          && !progress (from + (to - from) * (1.0 - (double) n / start), "thinning", progress_data))
+          && !progress (from + (to - from) * (1.0 - (double) remaining / start), "thinning",
+                        progress_data))
         {
           g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_CANCELLED, "thinning was cancelled");
           ok = FALSE;
         }
     }
+  for (gsize k = 0; k < n; k++)
+    p[list[k]] &= 1u;
   g_free (list);
   g_free (doomed);
+  g_free (gone);
   return ok;
 }
 
