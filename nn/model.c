@@ -30,21 +30,20 @@ struct _ReteModel {
 };
 
 static void
-write_architecture (ReteModel *model)
+write_architecture (GHashTable *meta, const ReteUnet *net)
 {
-  const ReteUnetConfig *cf = &model->net->config;
+  const ReteUnetConfig *cf = &net->config;
   char text[16];
 #define PUT(key, value) (g_snprintf (text, sizeof text, "%d", (value)), \
-                         g_hash_table_insert (model->meta, g_strdup (key), g_strdup (text)))
+                         g_hash_table_insert (meta, g_strdup (key), g_strdup (text)))
   PUT ("levels", cf->levels);
   PUT ("base_filters", cf->base_filters);
   PUT ("convs_per_block", cf->convs_per_block);
   PUT ("in_channels", cf->in_channels);
 #undef PUT
-  g_hash_table_insert (model->meta, g_strdup ("activation"),
+  g_hash_table_insert (meta, g_strdup ("activation"),
                        g_strdup (cf->activation ? "relu" : "identity"));
-  g_hash_table_insert (model->meta, g_strdup ("format_version"),
-                       g_strdup (RETE_MODEL_FORMAT_VERSION));
+  g_hash_table_insert (meta, g_strdup ("format_version"), g_strdup (RETE_MODEL_FORMAT_VERSION));
 }
 
 ReteModel *
@@ -54,7 +53,7 @@ rete_model_new (ReteUnet *net)
   ReteModel *model = g_new0 (ReteModel, 1);
   model->net = net;
   model->meta = g_hash_table_new_full (g_str_hash, g_str_equal, g_free, g_free);
-  write_architecture (model);
+  write_architecture (model->meta, net);
   return model;
 }
 
@@ -133,19 +132,26 @@ compare_strings (gconstpointer a, gconstpointer b)
 gboolean
 rete_model_save (const ReteModel *model, const char *path, GError **error)
 {
-  write_architecture ((ReteModel *) model); /* the architecture always describes the net */
   const ReteUnet *net = model->net;
+  /* a copy of the metadata whose architecture keys describe the net as it is */
+  g_autoptr (GHashTable) meta = g_hash_table_new_full (g_str_hash, g_str_equal, g_free, g_free);
+  GHashTableIter iter;
+  gpointer key, value;
+  g_hash_table_iter_init (&iter, model->meta);
+  while (g_hash_table_iter_next (&iter, &key, &value))
+    g_hash_table_insert (meta, g_strdup (key), g_strdup (value));
+  write_architecture (meta, net);
   g_autoptr (JsonBuilder) b = json_builder_new ();
   json_builder_begin_object (b);
   json_builder_set_member_name (b, "__metadata__");
   json_builder_begin_object (b);
   guint n_keys = 0;
-  const char **keys = (const char **) g_hash_table_get_keys_as_array (model->meta, &n_keys);
+  const char **keys = (const char **) g_hash_table_get_keys_as_array (meta, &n_keys);
   qsort (keys, n_keys, sizeof (char *), compare_strings);
   for (guint i = 0; i < n_keys; i++)
     {
       json_builder_set_member_name (b, keys[i]);
-      json_builder_add_string_value (b, g_hash_table_lookup (model->meta, keys[i]));
+      json_builder_add_string_value (b, g_hash_table_lookup (meta, keys[i]));
     }
   g_free (keys);
   json_builder_end_object (b);

@@ -563,6 +563,38 @@ static const TileCase tile_cases[] = {
   { "/nn/infer/tiled-matches-untiled/1-level", 1, 4, 2, 1, 45, 33, 8 },
 };
 
+/* The checker can fail: a window with less border than the halo does not give the untiled
+ * values in its core, one with the halo does. Windows are cut by hand here and run untiled. */
+static void
+test_halo_is_needed (void)
+{
+  ReteModel *model = rete_model_new (make_net (3, 16, 2, TRUE, 1, 3));
+  const int W = 160, H = 160, core0 = 64, core1 = 96; /* core [64, 96)² */
+  int halo = rete_unet_halo (rete_unet_config (rete_model_net (model)));
+  float *x = random_array ((gsize) W * H, 1.5), *whole = g_new (float, (gsize) W * H);
+  g_assert_true (rete_model_infer_untiled (model, x, 1, H, W, whole, NULL));
+  for (int border = halo; border >= halo - 8; border -= 4)
+    {
+      int w0 = core0 - border, side = core1 - core0 + 2 * border;
+      float *win = g_new (float, (gsize) side * side), *p = g_new (float, (gsize) side * side);
+      for (int y = 0; y < side; y++)
+        memcpy (win + (gsize) y * side, x + (gsize) (w0 + y) * W + w0, sizeof (float) * side);
+      g_assert_true (rete_model_infer_untiled (model, win, 1, side, side, p, NULL));
+      double diff = 0;
+      for (int y = core0; y < core1; y++)
+        for (int xx = core0; xx < core1; xx++)
+          diff = fmax (diff, fabs (p[(gsize) (y - w0) * side + xx - w0] - whole[(gsize) y * W + xx]));
+      g_test_message ("border %d (halo %d): largest difference in the core %.2e", border, halo, diff);
+      if (border == halo)
+        g_assert_cmpfloat (diff, <=, 1e-5);
+      else
+        g_assert_cmpfloat (diff, >, 1e-5);
+      g_free (win), g_free (p);
+    }
+  g_free (x), g_free (whole);
+  rete_model_free (model);
+}
+
 static gboolean
 cancel_at_half (double fraction, const char *message, gpointer data)
 {
@@ -876,6 +908,7 @@ main (int argc, char **argv)
   g_test_add_func ("/nn/unet/bad-arguments", test_unet_bad_arguments);
   for (gsize i = 0; i < G_N_ELEMENTS (tile_cases); i++)
     g_test_add_data_func (tile_cases[i].path, &tile_cases[i], test_tiled_matches_untiled);
+  g_test_add_func ("/nn/infer/halo-is-needed", test_halo_is_needed);
   g_test_add_func ("/nn/infer/bad-input-and-cancel", test_infer_bad_input);
   g_test_add_func ("/nn/model/round-trip", test_model_round_trip);
   for (gsize i = 0; i < G_N_ELEMENTS (bad_files); i++)
