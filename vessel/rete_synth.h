@@ -58,6 +58,13 @@ RETE_API void rete_synth_truth_clear (ReteSynthTruth *truth);
  * parameter, its value and the accepted range. */
 RETE_API gboolean rete_synth_params_check (const ReteSynthParams *params, GError **error);
 
+/* The blocky artefacts of JPEG compression without a codec, in place on a 3-channel image
+ * with values in [0,1] (what jpeg_artefacts does to the synthetic photograph; for tests of
+ * robustness on any image): YCbCr (ITU-T T.871), 8x8 DCT, quantisation with the tables of
+ * ITU-T T.81 Annex K scaled for `quality` (1..100) as the IJG library does, back to RGB.
+ * No chroma subsampling. Fails (image untouched) on another channel count or quality. */
+RETE_API gboolean rete_synth_jpeg_artefacts (ReteImage *photo, int quality, GError **error);
+
 G_END_DECLS
 
 #endif /* RETE_SYNTH_H */

@@ -135,3 +135,23 @@ synth_jpeg_quantise (ReteImage *photo, int quality)
       b[i] = (float) CLAMP ((Y + 1.772 * Cb) / 255.0, 0.0, 1.0);
     }
 }
+
+gboolean
+rete_synth_jpeg_artefacts (ReteImage *photo, int quality, GError **error)
+{
+  if (photo == NULL || !rete_image_check_channels (photo, "photograph", 3, error))
+    {
+      if (photo == NULL)
+        g_set_error_literal (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
+                             "JPEG artefacts: no photograph given");
+      return FALSE;
+    }
+  if (quality < 1 || quality > 100)
+    {
+      g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
+                   "JPEG artefacts: quality is %d; it must lie between 1 and 100", quality);
+      return FALSE;
+    }
+  synth_jpeg_quantise (photo, quality);
+  return TRUE;
+}
