@@ -26,12 +26,30 @@ typedef struct {
   float *maps;            /* (ny, nx, n_bins) mapping of each bin, 0..16383 */
 } ReteClaheTiles;
 
-/* Bins of every pixel (into `bins`), histograms of all tiles (read mirrored past the edges,
- * FOV pixels only when fov != NULL), clipped, turned into mappings; with a FOV, tiles that
- * saw too few pixels take their neighbours' mappings. */
+/* Everything the pixel passes (clahe_passes.c) share. */
+typedef struct {
+  ReteClaheTiles tiles;
+  const float *weight_x;  /* (kw) weight of the right tile at each offset in a block */
+  float *out;             /* (height, width) */
+  GMutex lock;            /* guards the results of the chunks below */
+  float g_min, g_max;     /* input range inside the FOV */
+  gboolean any_inside, any_not_finite;
+  float v_min, v_max;     /* interpolated range inside the FOV */
+} ReteClahe;
+
+/* Pass 1: input range inside the FOV, NaN/infinity, FOV not empty, 16-bit values. */
+G_GNUC_INTERNAL void rete_clahe_range_rows (int first, int last, gpointer data);
+/* Pass 3: bilinear interpolation of the tile mappings, and the range of the result. */
+G_GNUC_INTERNAL void rete_clahe_interpolate_rows (int first, int last, gpointer data);
+/* Pass 4: the result stretched to [0, 1] inside the FOV, 0 outside. */
+G_GNUC_INTERNAL void rete_clahe_stretch_rows (int first, int last, gpointer data);
+
+/* Pass 2: bins of every pixel (into `bins`), histograms of all tiles (read mirrored past
+ * the edges, FOV pixels only when fov != NULL), clipped, turned into mappings; with a FOV,
+ * tiles that saw too few pixels take their neighbours' mappings. */
 G_GNUC_INTERNAL void rete_clahe_tile_maps (ReteClaheTiles *tiles);
 
-/* skimage's clip_histogram (exposed for tests of the redistribution rule). */
+/* Zuiderveld's ClipHistogram as skimage's clip_histogram (clahe_tiles.c). */
 G_GNUC_INTERNAL void rete_clahe_clip_histogram (guint32 *hist, int n, gint64 clip);
 
 G_END_DECLS

@@ -1,0 +1,219 @@
+/* clahe_passes.c — the pixel passes of CLAHE (Zuiderveld, Graphics Gems IV, 1994; the steps
+ * are listed in clahe.c), each run over bands of rows by rete_parallel_for. SSE2 where the
+ * compiler has it (every x86-64), with the plain loop beside it for the rest of a row and
+ * for other processors; the tests run widths that are not multiples of 4, so both paths
+ * are held against skimage.
+ */
+#include "clahe_private.h"
+
+#include <math.h>
+#include <string.h>
+#ifdef __SSE2__
+#include <emmintrin.h>
+#endif
+
+/* Pass 1: range of the input inside the FOV, whether the FOV has a pixel, values that are
+ * not numbers (x - x is 0 for every finite x, NaN for NaN and infinities); and the 16-bit
+ * value of each pixel, rint (v × 65535) as skimage's img_as_uint on float32 (the
+ * conversion rounds to nearest, ties to even, as np.rint), clamped to [0, 1] first since
+ * outside the FOV anything goes. */
+void
+rete_clahe_range_rows (int first, int last, gpointer data)
+{
+  ReteClahe *c = data;
+  const ReteClaheTiles *t = &c->tiles;
+  float lo = G_MAXFLOAT, hi = -G_MAXFLOAT;
+  gboolean any_in = FALSE, any_bad = FALSE;
+  for (int y = first; y < last; y++)
+    {
+      const float *g = t->grey + (gsize) y * t->width;
+      const float *f = t->fov ? t->fov + (gsize) y * t->width : NULL;
+      guint16 *u = t->bins + (gsize) y * t->width;
+      int x = 0;
+#ifdef __SSE2__
+      __m128 lo4 = _mm_set1_ps (lo), hi4 = _mm_set1_ps (hi), bad4 = _mm_setzero_ps ();
+      __m128 in4 = _mm_setzero_ps (), zero = _mm_setzero_ps (), half = _mm_set1_ps (0.5f);
+      __m128 big = _mm_set1_ps (G_MAXFLOAT), small = _mm_set1_ps (-G_MAXFLOAT);
+      __m128 one = _mm_set1_ps (1.0f), scale = _mm_set1_ps (65535.0f);
+      __m128i bias = _mm_set1_epi32 (32768), flip = _mm_set1_epi16 ((short) 0x8000);
+      for (; x + 4 <= t->width; x += 4)
+        {
+          __m128 v = _mm_loadu_ps (g + x);
+          /* to 16 bits: SSE2 packs signed, so shift by 32768 around the packing */
+          __m128i q = _mm_cvtps_epi32 (_mm_mul_ps (_mm_min_ps (_mm_max_ps (v, zero), one), scale));
+          q = _mm_packs_epi32 (_mm_sub_epi32 (q, bias), _mm_sub_epi32 (q, bias));
+          _mm_storel_epi64 ((__m128i *) (u + x), _mm_xor_si128 (q, flip));
+          bad4 = _mm_or_ps (bad4, _mm_cmpneq_ps (_mm_sub_ps (v, v), zero));
+          if (f != NULL)
+            {
+              __m128 m = _mm_loadu_ps (f + x);
+              bad4 = _mm_or_ps (bad4, _mm_cmpneq_ps (_mm_sub_ps (m, m), zero));
+              __m128 in = _mm_cmpgt_ps (m, half);
+              in4 = _mm_or_ps (in4, in);
+              lo4 = _mm_min_ps (lo4, _mm_or_ps (_mm_and_ps (in, v), _mm_andnot_ps (in, big)));
+              hi4 = _mm_max_ps (hi4, _mm_or_ps (_mm_and_ps (in, v), _mm_andnot_ps (in, small)));
+            }
+          else
+            {
+              lo4 = _mm_min_ps (lo4, v);
+              hi4 = _mm_max_ps (hi4, v);
+            }
+        }
+      float l[4], h[4];
+      _mm_storeu_ps (l, lo4);
+      _mm_storeu_ps (h, hi4);
+      for (int k = 0; k < 4; k++)
+        {
+          lo = MIN (lo, l[k]);
+          hi = MAX (hi, h[k]);
+        }
+      any_bad |= _mm_movemask_ps (bad4) != 0;
+      any_in |= _mm_movemask_ps (in4) != 0 || (f == NULL && x > 0);
+#endif
+      for (; x < t->width; x++)
+        {
+          float v = g[x];
+          gboolean in = f == NULL || f[x] > 0.5f;
+          u[x] = (guint16) lrintf (v > 0.0f ? (v < 1.0f ? v : 1.0f) * 65535.0f : 0.0f);
+          any_in |= in;
+          any_bad |= !(v - v == 0.0f) || (f != NULL && !(f[x] - f[x] == 0.0f));
+          if (in)
+            {
+              lo = MIN (lo, v);
+              hi = MAX (hi, v);
+            }
+        }
+    }
+  g_mutex_lock (&c->lock);
+  c->g_min = MIN (c->g_min, lo);
+  c->g_max = MAX (c->g_max, hi);
+  c->any_inside |= any_in;
+  c->any_not_finite |= any_bad;
+  g_mutex_unlock (&c->lock);
+}
+
+/* Smallest and largest of v[0..n) where f > 0.5 (everywhere when f is NULL), folded into
+ * *lo and *hi. */
+static void
+row_range (const float *v, const float *f, int n, float *lo, float *hi)
+{
+  int x = 0;
+  float l = *lo, h = *hi;
+#ifdef __SSE2__
+  __m128 lo4 = _mm_set1_ps (l), hi4 = _mm_set1_ps (h), half = _mm_set1_ps (0.5f);
+  for (; x + 4 <= n; x += 4)
+    {
+      __m128 a = _mm_loadu_ps (v + x);
+      if (f != NULL)
+        {
+          __m128 in = _mm_cmpgt_ps (_mm_loadu_ps (f + x), half);
+          lo4 = _mm_min_ps (lo4, _mm_or_ps (_mm_and_ps (in, a), _mm_andnot_ps (in, lo4)));
+          hi4 = _mm_max_ps (hi4, _mm_or_ps (_mm_and_ps (in, a), _mm_andnot_ps (in, hi4)));
+        }
+      else
+        {
+          lo4 = _mm_min_ps (lo4, a);
+          hi4 = _mm_max_ps (hi4, a);
+        }
+    }
+  float ls[4], hs[4];
+  _mm_storeu_ps (ls, lo4);
+  _mm_storeu_ps (hs, hi4);
+  for (int k = 0; k < 4; k++)
+    {
+      l = MIN (l, ls[k]);
+      h = MAX (h, hs[k]);
+    }
+#endif
+  for (; x < n; x++)
+    if (f == NULL || f[x] > 0.5f)
+      {
+        l = MIN (l, v[x]);
+        h = MAX (h, v[x]);
+      }
+  *lo = l;
+  *hi = h;
+}
+
+/* Pass 2 (clahe_tiles.c): bins, histograms, mappings.
+ * Pass 3: bilinear interpolation between the mappings of the four tiles around each pixel.
+ * A row blends its two tile rows once (into `row_maps`); each block of columns then reads two
+ * blended mappings. */
+void
+rete_clahe_interpolate_rows (int first, int last, gpointer data)
+{
+  ReteClahe *c = data;
+  const ReteClaheTiles *t = &c->tiles;
+  int nb = t->n_bins, kw = t->kw;
+  float *row_maps = g_new (float, (gsize) t->nx * nb);
+  float lo = G_MAXFLOAT, hi = -G_MAXFLOAT;
+  for (int y = first; y < last; y++)
+    {
+      int p = y + t->kh / 2, j = p / t->kh;
+      float wy = (float) ((double) (p % t->kh) / t->kh);
+      const float *m0 = t->maps + (gsize) CLAMP (j - 1, 0, t->ny - 1) * t->nx * nb;
+      const float *m1 = t->maps + (gsize) CLAMP (j, 0, t->ny - 1) * t->nx * nb;
+      for (int k = 0; k < t->nx * nb; k++)
+        row_maps[k] = m0[k] + wy * (m1[k] - m0[k]);
+      gsize row = (gsize) y * t->width;
+      const guint16 *b = t->bins + row;
+      float *out = c->out + row;
+      /* column x sits at x + kw/2 on the grid of blocks; block jx blends tiles jx-1 and jx */
+      for (int jx = 0, x = 0; x < t->width; jx++)
+        {
+          int start = jx * kw - kw / 2, stop = MIN (start + kw, t->width);
+          const float *left = row_maps + (gsize) CLAMP (jx - 1, 0, t->nx - 1) * nb;
+          const float *right = row_maps + (gsize) CLAMP (jx, 0, t->nx - 1) * nb;
+          const float *w = c->weight_x - start;
+#ifdef __SSE2__
+          for (; x + 4 <= stop; x += 4)
+            {
+              __m128 l = _mm_setr_ps (left[b[x]], left[b[x + 1]], left[b[x + 2]], left[b[x + 3]]);
+              __m128 r = _mm_setr_ps (right[b[x]], right[b[x + 1]], right[b[x + 2]],
+                                      right[b[x + 3]]);
+              __m128 o = _mm_add_ps (l, _mm_mul_ps (_mm_loadu_ps (w + x), _mm_sub_ps (r, l)));
+              _mm_storeu_ps (out + x, o);
+            }
+#endif
+          for (; x < stop; x++)
+            {
+              float l = left[b[x]], r = right[b[x]];
+              out[x] = l + w[x] * (r - l);
+            }
+        }
+      row_range (out, t->fov ? t->fov + row : NULL, t->width, &lo, &hi);
+    }
+  g_free (row_maps);
+  g_mutex_lock (&c->lock);
+  c->v_min = MIN (c->v_min, lo);
+  c->v_max = MAX (c->v_max, hi);
+  g_mutex_unlock (&c->lock);
+}
+
+/* Pass 4: the result stretched to [0, 1] inside the FOV (skimage's final
+ * rescale_intensity), 0 outside; a flat result is 1 (skimage clips it into [0, 1]). */
+void
+rete_clahe_stretch_rows (int first, int last, gpointer data)
+{
+  ReteClahe *c = data;
+  const float *fov = c->tiles.fov;
+  float lo = c->v_min, range = c->v_max - c->v_min;
+  float scale = range > 0 ? 1.0f / range : 0.0f, offset = range > 0 ? 0.0f : 1.0f;
+  gsize i0 = (gsize) first * c->tiles.width, i1 = (gsize) last * c->tiles.width;
+  float *out = c->out;
+  gsize i = i0;
+#ifdef __SSE2__
+  __m128 lo4 = _mm_set1_ps (lo), scale4 = _mm_set1_ps (scale), offset4 = _mm_set1_ps (offset);
+  __m128 half = _mm_set1_ps (0.5f);
+  for (; i + 4 <= i1; i += 4)
+    {
+      __m128 o = _mm_add_ps (_mm_mul_ps (_mm_sub_ps (_mm_loadu_ps (out + i), lo4), scale4),
+                             offset4);
+      if (fov != NULL)
+        o = _mm_and_ps (o, _mm_cmpgt_ps (_mm_loadu_ps (fov + i), half));
+      _mm_storeu_ps (out + i, o);
+    }
+#endif
+  for (; i < i1; i++)
+    out[i] = fov == NULL || fov[i] > 0.5f ? (out[i] - lo) * scale + offset : 0.0f;
+}
