@@ -32,43 +32,54 @@ score_level (float s)
   return (int) (s * 65535.0f + 0.5f); /* non-decreasing in s, 0..65535 for s in [0, 1] */
 }
 
+/* One block of samples into a slice's tables; FALSE on a score off the levels. Locals and
+ * `restrict` let the compiler keep the pointers in registers. */
+static gboolean
+count_level_block (const ReteCountInput *in, LevelSlice *q, gsize begin, gsize end)
+{
+  const float *restrict scores = in->scores;
+  const float *restrict mask = in->mask;
+  float *restrict value = q->value;
+  guint32 *restrict count = q->count;
+  for (gsize i = begin; i < end; i++)
+    {
+      if (mask != NULL && !(mask[i] >= 0.5f))
+        continue;
+      float s = scores[i];
+      if (!(s >= 0.0f && s <= 1.0f)) /* also NaN: the radix path names it */
+        return FALSE;
+      int k = score_level (s);
+      if (value[k] != s)
+        {
+          if (value[k] >= 0.0f)
+            return FALSE;
+          value[k] = s + 0.0f; /* -0 kept as +0 */
+        }
+      int vessel = rete_count_label (in, i, &q->stats);
+      count[2 * k + vessel]++;
+    }
+  return TRUE;
+}
+
 static void
 count_levels (int first, int last, gpointer data)
 {
   LevelJob *job = data;
-  const ReteCountInput *in = job->in;
   for (int sl = first; sl < last; sl++)
     {
-      LevelSlice *q = &job->slices[sl];
       gsize begin, end;
-      rete_count_slice (in, sl, job->n_slices, &begin, &end);
+      rete_count_slice (job->in, sl, job->n_slices, &begin, &end);
       for (gsize block = begin; block < end; block += BLOCK)
         {
           if (g_atomic_int_get (&job->off_levels))
             return;
-          gsize stop = MIN (end, block + BLOCK);
-          for (gsize i = block; i < stop; i++)
+          if (!count_level_block (job->in, &job->slices[sl], block, MIN (end, block + BLOCK)))
             {
-              if (!rete_count_inside (in, i))
-                continue;
-              float s = in->scores[i];
-              if (!(s >= 0.0f && s <= 1.0f)) /* also NaN: the radix path names it */
-                goto off_levels;
-              int k = score_level (s);
-              if (q->value[k] != s)
-                {
-                  if (q->value[k] >= 0.0f)
-                    goto off_levels;
-                  q->value[k] = s + 0.0f; /* -0 kept as +0 */
-                }
-              int vessel = rete_count_label (in, i, &q->stats);
-              q->count[2 * k + vessel]++;
+              g_atomic_int_set (&job->off_levels, 1);
+              return;
             }
         }
     }
-  return;
-off_levels:
-  g_atomic_int_set (&job->off_levels, 1);
 }
 
 /* A cheap look at up to 256 samples: are they all within 0.02 of a level? Uniform floats
@@ -131,13 +142,14 @@ count_quantised (const ReteCountInput *in, ReteCountResult *result, gboolean *do
       for (int s = 0; s < n_slices; s++)
         {
           const LevelSlice *q = &job.slices[s];
-          if (q->count[2 * k] + q->count[2 * k + 1] == 0)
+          guint64 slice_neg = q->count[2 * k], slice_pos = q->count[2 * k + 1];
+          if (slice_neg + slice_pos == 0)
             continue;
           if (score >= 0.0f && q->value[k] != score)
             goto out; /* two threads met different scores at one level */
           score = q->value[k];
-          neg += q->count[2 * k];
-          pos += q->count[2 * k + 1];
+          neg += slice_neg;
+          pos += slice_pos;
         }
       if (pos + neg == 0)
         continue;
