@@ -1,5 +1,6 @@
-/* unet_private.h — the inside of ReteUnet, shared by unet.c (build, forward, backward),
- * infer.c (tiled inference) and model.c (the model file). Not installed. */
+/* unet_private.h — the inside of ReteUnet and ReteModel, shared by unet.c (build),
+ * unet_forward.c, unet_backward.c, infer.c (tiled inference), model.c and model_load.c (the
+ * model file). Not installed. */
 #ifndef RETE_NN_UNET_PRIVATE_H
 #define RETE_NN_UNET_PRIVATE_H
 
@@ -45,6 +46,12 @@ struct _ReteUnet {
   int act_n, act_height, act_width;
   float *act_memory;
   UnetActivations *acts; /* (act_n) */
+};
+
+struct _ReteModel {
+  ReteUnet *net;
+  GHashTable *meta; /* string -> string */
+  int tile;         /* inference core tile side, 0 = chosen for memory */
 };
 
 /* Floats needed for one image's activations of height × width (multiples of 2^(L-1)); when
