@@ -149,6 +149,27 @@ test_synthetic (gconstpointer data)
   assert_one_region_without_holes (fov);
 }
 
+/* A grey photograph (its red channel) and an RGBA one (alpha 0: ignored) give the same
+ * aperture as the RGB one. */
+static void
+test_grey_and_rgba (void)
+{
+  const Synthetic *s = &synthetic_cases[1];
+  g_autoptr (ReteImage) truth = NULL;
+  g_autoptr (ReteImage) photo = make_photo (s, &truth);
+  g_autoptr (ReteImage) red = rete_image_extract_channel (photo, 0, NULL);
+  g_autoptr (ReteImage) rgba = rete_image_new (photo->width, photo->height, 4, NULL);
+  memcpy (rgba->data, photo->data, sizeof (float) * 3 * rete_image_n_pixels (photo));
+  g_autoptr (ReteImage) from_rgb = rete_fov_detect (photo, NULL, NULL);
+  g_autoptr (ReteImage) from_grey = rete_fov_detect (red, NULL, NULL);
+  g_autoptr (ReteImage) from_rgba = rete_fov_detect (rgba, NULL, NULL);
+  gsize size = sizeof (float) * rete_image_n_pixels (photo);
+  g_assert_cmpmem (from_rgb->data, size, from_rgba->data, size);
+  double dice = rete_mask_dice (from_grey, truth, NULL);
+  g_test_message ("grey photograph: Dice %.4f", dice);
+  g_assert_cmpfloat (dice, >=, SYNTHETIC_DICE_FLOOR);
+}
+
 static void
 test_black_frame (void)
 {
@@ -435,6 +456,7 @@ main (int argc, char **argv)
                                                synthetic_cases[i].name);
       g_test_add_data_func (path, &synthetic_cases[i], test_synthetic);
     }
+  g_test_add_func ("/fov/detect/grey-and-rgba", test_grey_and_rgba);
   g_test_add_func ("/fov/detect/black-frame", test_black_frame);
   g_test_add_func ("/fov/detect/lit-frame", test_lit_frame);
   g_test_add_func ("/fov/detect/given-level-and-rim", test_given_level_and_rim);
