@@ -688,6 +688,11 @@ test_bad_input (gconstpointer data)
     use_map = rgb;
   else if (!strcmp (n, "not-finite"))
     map->data[100] = NAN;
+  else if (!strcmp (n, "fov-not-finite"))
+    {
+      fov->data[200] = INFINITY;
+      use_fov = fov;
+    }
   else if (!strcmp (n, "fov-size"))
     use_fov = small;
   else if (!strcmp (n, "fov-empty"))
@@ -728,6 +733,7 @@ static const BadCase bad_cases[] = {
   { "no-map", RETE_ERROR_INVALID_ARGUMENT },
   { "colour-map", RETE_ERROR_INVALID_ARGUMENT },
   { "not-finite", RETE_ERROR_NOT_FINITE },
+  { "fov-not-finite", RETE_ERROR_NOT_FINITE },
   { "fov-size", RETE_ERROR_SIZE_MISMATCH },
   { "fov-empty", RETE_ERROR_EMPTY },
   { "pixel-size-zero", RETE_ERROR_INVALID_ARGUMENT },

@@ -61,6 +61,11 @@ rows_range (int first, int last, gpointer data)
   for (int y = first; y < last; y++)
     {
       float *row = job->distance + (gsize) y * w;
+      int first_set = 0;
+      while (first_set < w && row[first_set] == 0.0f)
+        first_set++;
+      if (first_set == w)
+        continue; /* all background: distances 0 already */
       int k = -1;
       for (int q = 0; q < w; q++)
         {
@@ -95,8 +100,10 @@ rows_range (int first, int last, gpointer data)
       if (k < 0)
         continue; /* no background in any column crossing this row: all infinite */
       k = 0;
-      for (int q = 0; q < w; q++)
+      for (int q = first_set; q < w; q++)
         {
+          if (f[q] == 0.0)
+            continue; /* background: 0 */
           while (z[k + 1] < q)
             k++;
           double dq = q - v[k];

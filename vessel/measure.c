@@ -150,6 +150,52 @@ add_note (GString *notes, const char *format, ...)
   va_end (args);
 }
 
+typedef struct {
+  gsize fov, vessel, outside, non_binary;
+  int bad_map, bad_fov; /* x of the first non-finite value in the row, or -1 */
+} RowCounts;
+
+typedef struct {
+  const ReteImage *binary, *fov;
+  ReteByteMap *vessels;
+  RowCounts *rows; /* (height) */
+} ConvertJob;
+
+/* Rows first..last-1: vessel = value >= 0.5 inside the FOV, into the framed byte map. */
+static void
+convert_rows (int first, int last, gpointer data)
+{
+  ConvertJob *job = data;
+  int w = job->binary->width;
+  for (int y = first; y < last; y++)
+    {
+      const float *row = job->binary->data + (gsize) y * w;
+      const float *frow = job->fov ? job->fov->data + (gsize) y * w : NULL;
+      guint8 *out = job->vessels->pixels + rete_byte_map_index (job->vessels, 0, y);
+      RowCounts c = { 0, 0, 0, 0, -1, -1 };
+      for (int x = 0; x < w; x++)
+        {
+          float v = row[x];
+          if (!isfinite (v) && c.bad_map < 0)
+            c.bad_map = x;
+          c.non_binary += v != 0.0f && v != 1.0f;
+          gboolean inside = TRUE;
+          if (frow != NULL)
+            {
+              if (!isfinite (frow[x]) && c.bad_fov < 0)
+                c.bad_fov = x;
+              inside = frow[x] >= 0.5f;
+            }
+          gboolean vessel = v >= 0.5f;
+          c.fov += inside;
+          c.outside += vessel && !inside;
+          out[x] = vessel && inside;
+          c.vessel += out[x];
+        }
+      job->rows[y] = c;
+    }
+}
+
 ReteMeasurements *
 rete_measure (const ReteImage *binary, const ReteImage *fov, const ReteMeasureParams *params,
               GError **error)
@@ -166,13 +212,11 @@ rete_measure (const ReteImage *binary, const ReteImage *fov, const ReteMeasurePa
                    "no vessel map was given to measure");
       return NULL;
     }
-  if (!rete_image_check_channels (binary, "vessel map", 1, error)
-      || !rete_image_check_finite (binary, "vessel map", error))
+  if (!rete_image_check_channels (binary, "vessel map", 1, error))
     return NULL;
   if (fov != NULL
       && (!rete_image_check_channels (fov, "field of view", 1, error)
-          || !rete_image_check_same_size (binary, "vessel map", fov, "field of view", error)
-          || !rete_image_check_finite (fov, "field of view", error)))
+          || !rete_image_check_same_size (binary, "vessel map", fov, "field of view", error)))
     return NULL;
   int w = binary->width, h = binary->height;
   double ps;
@@ -184,24 +228,35 @@ rete_measure (const ReteImage *binary, const ReteImage *fov, const ReteMeasurePa
   g_autoptr (ReteByteMap) vessels = rete_byte_map_new (w, h, error);
   if (vessels == NULL)
     return NULL;
+  /* one pass, in row bands on every core: bytes, counts, and the finiteness checks */
+  ConvertJob job = { binary, fov, vessels, g_new0 (RowCounts, h) };
+  rete_parallel_for (h, convert_rows, &job);
   gsize fov_pixels = 0, vessel_pixels = 0, outside = 0, non_binary = 0;
+  int bad_map = -1, bad_fov = -1;
   for (int y = 0; y < h; y++)
     {
-      const float *row = binary->data + (gsize) y * w;
-      const float *frow = fov ? fov->data + (gsize) y * w : NULL;
-      guint8 *out = vessels->pixels + rete_byte_map_index (vessels, 0, y);
-      for (int x = 0; x < w; x++)
-        {
-          float v = row[x];
-          non_binary += v != 0.0f && v != 1.0f;
-          gboolean inside = frow == NULL || frow[x] >= 0.5f;
-          gboolean vessel = v >= 0.5f;
-          fov_pixels += inside;
-          outside += vessel && !inside;
-          out[x] = vessel && inside;
-          vessel_pixels += out[x];
-        }
+      const RowCounts *c = &job.rows[y];
+      fov_pixels += c->fov;
+      vessel_pixels += c->vessel;
+      outside += c->outside;
+      non_binary += c->non_binary;
+      if (bad_map < 0 && c->bad_map >= 0)
+        bad_map = y;
+      if (bad_fov < 0 && c->bad_fov >= 0)
+        bad_fov = y;
     }
+  if (bad_map >= 0 || bad_fov >= 0)
+    {
+      gboolean in_map = bad_map >= 0;
+      int y = in_map ? bad_map : bad_fov;
+      g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NOT_FINITE,
+                   "%s holds a value that is not a number (NaN or infinity) at pixel (%d, %d): "
+                   "give a map of finite values", in_map ? "the vessel map" : "the field of view",
+                   in_map ? job.rows[y].bad_map : job.rows[y].bad_fov, y);
+      g_free (job.rows);
+      return NULL;
+    }
+  g_free (job.rows);
   if (fov_pixels == 0)
     {
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_EMPTY,
