@@ -561,6 +561,8 @@ static const TileCase tile_cases[] = {
   { "/nn/infer/tiled-matches-untiled/4-levels-1-conv-rgb", 4, 4, 1, 3, 150, 97, 40 },
   { "/nn/infer/tiled-matches-untiled/5-levels", 5, 2, 2, 1, 129, 260, 48 },
   { "/nn/infer/tiled-matches-untiled/1-level", 1, 4, 2, 1, 45, 33, 8 },
+  { "/nn/infer/tiled-matches-untiled/one-pixel", 3, 4, 2, 1, 1, 1, 0 },
+  { "/nn/infer/tiled-matches-untiled/one-row", 3, 4, 2, 1, 77, 1, 16 },
 };
 
 /* The checker can fail: a window with less border than the halo does not give the untiled
