@@ -5,7 +5,8 @@
  * and every line or ridge detector answers strongly to the rim of that disc. Replacing the
  * surround with a smooth continuation of the fundus before filtering is common practice
  * (Soares et al., IEEE TMI 2006, grow the FOV iteratively; we use a normalised convolution,
- * Knutsson & Westin, CVPR 1993, which gives the local mean of the fundus near the rim).
+ * Knutsson & Westin, CVPR 1993, which gives the local mean of the fundus near the rim; the
+ * smoothing is two box means, a tent of the given standard deviation, O(1) per pixel).
  */
 #include "filters_private.h"
 
@@ -48,6 +49,18 @@ rete_filters_check_input (const ReteImage *grey, const ReteImage *fov, const cha
   return FALSE;
 }
 
+/* Two passes of a box mean of width `size`: a tent-shaped smoothing, O(1) per pixel. */
+static ReteImage *
+smooth_twice (const ReteImage *image, int size, GError **error)
+{
+  ReteImage *once = rete_box_mean (image, size, error);
+  if (once == NULL)
+    return NULL;
+  ReteImage *twice = rete_box_mean (once, size, error);
+  rete_image_free (once);
+  return twice;
+}
+
 ReteImage *
 rete_filters_fill_outside_fov (const ReteImage *grey, const ReteImage *fov, double sigma,
                                GError **error)
@@ -55,48 +68,48 @@ rete_filters_fill_outside_fov (const ReteImage *grey, const ReteImage *fov, doub
   ReteImage *out = rete_image_copy (grey, error);
   if (out == NULL || fov == NULL)
     return out;
-  gsize n = rete_image_n_pixels (grey), n_inside = 0, n_outside = 0;
+  gsize n = rete_image_n_pixels (grey), n_inside = 0;
   double sum = 0;
-  ReteImage *masked = rete_image_new_like (grey, 2, error);
-  if (masked == NULL)
-    {
-      rete_image_free (out);
-      return NULL;
-    }
-  float *value = rete_image_plane (masked, 0), *weight = rete_image_plane (masked, 1);
   for (gsize i = 0; i < n; i++)
     if (fov->data[i] >= 0.5f)
       {
-        value[i] = grey->data[i];
-        weight[i] = 1;
         sum += grey->data[i];
         n_inside++;
       }
-    else
-      n_outside++;
-  if (n_outside == 0)
-    {
-      rete_image_free (masked);
-      return out;
-    }
-  ReteImage *blurred = rete_gaussian_blur (masked, sigma, error);
-  rete_image_free (masked);
-  if (blurred == NULL)
+  if (n_inside == n)
+    return out;
+  g_autoptr (ReteImage) value = rete_image_new_like (grey, 1, error);
+  g_autoptr (ReteImage) weight = value ? rete_image_new_like (grey, 1, error) : NULL;
+  if (weight == NULL)
     {
       rete_image_free (out);
       return NULL;
     }
-  float mean = (float) (sum / MAX (n_inside, 1));
-  const float *bv = rete_image_plane (blurred, 0), *bw = rete_image_plane (blurred, 1);
+  for (gsize i = 0; i < n; i++)
+    if (fov->data[i] >= 0.5f)
+      {
+        value->data[i] = grey->data[i];
+        weight->data[i] = 1;
+      }
+  /* two box passes of width s have variance (s^2 - 1) / 6: s = sqrt (6 sigma^2 + 1) */
+  int size = 2 * (int) (0.5 * sqrt (6 * sigma * sigma + 1)) + 1;
+  g_autoptr (ReteImage) bv = smooth_twice (value, size, error);
+  g_autoptr (ReteImage) bw = bv ? smooth_twice (weight, size, error) : NULL;
+  if (bw == NULL)
+    {
+      rete_image_free (out);
+      return NULL;
+    }
+  float mean = (float) (sum / n_inside);
   for (gsize i = 0; i < n; i++)
     if (fov->data[i] < 0.5f)
       {
         /* Blend towards the FOV's mean where few fundus pixels are near, so that the
          * continuation stays smooth instead of amplifying the last few pixels of the rim. */
-        float w = bw[i], local = w > 1e-6f ? bv[i] / w : mean, a = MIN (w / 0.05f, 1.0f);
+        float w = bw->data[i], local = w > 1e-6f ? bv->data[i] / w : mean;
+        float a = MIN (w / 0.05f, 1.0f);
         out->data[i] = a * local + (1 - a) * mean;
       }
-  rete_image_free (blurred);
   return out;
 }
 

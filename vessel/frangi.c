@@ -198,12 +198,11 @@ rete_frangi_raw (const ReteImage *grey, const ReteFrangiParams *params, GError *
   double scales[MAX_SCALES];
   if (!rete_filters_check_input (grey, NULL, "Frangi vesselness", error))
     return NULL;
+  ReteFrangiParams defaults;
   if (params == NULL)
     {
-      g_set_error_literal (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
-                           "Frangi vesselness: no parameters were given; start from "
-                           "rete_frangi_params_init ()");
-      return NULL;
+      rete_frangi_params_init (&defaults);
+      params = &defaults;
     }
   int n_scales = frangi_scales (params, scales, error);
   if (n_scales == 0)

@@ -304,6 +304,12 @@ matched_responses (const ReteImage *grey, const ReteMatchedParams *params, float
 ReteImage *
 rete_matched_raw (const ReteImage *grey, const ReteMatchedParams *params, GError **error)
 {
+  ReteMatchedParams defaults;
+  if (params == NULL)
+    {
+      rete_matched_params_init (&defaults);
+      params = &defaults;
+    }
   if (!rete_filters_check_input (grey, NULL, "matched filter", error) || !matched_check (params, error))
     return NULL;
   ReteImage *out = rete_image_new_like (grey, 1, error);

@@ -1,9 +1,11 @@
 /* rete_filters.h — classical vessel filters. Each reads a preprocessed one-channel
  * image (values in [0,1], vessels darker than the fundus, as in the green channel) and
  * an optional FOV mask, and returns a vessel map: float in [0,1], higher = more likely a
- * vessel, 0 outside the FOV. Borders are read by clamping (nearest edge pixel) unless a
- * function says otherwise; each filter's halo (how far it reads past a tile) is given so
- * that tiled processing is exact.
+ * vessel, 0 outside the FOV. Borders are read as scipy.ndimage's 'reflect' mode
+ * (d c b a | a b c d | d c b a), as skimage and OpenCV's BORDER_REFLECT do, so that results can
+ * be checked against them; each filter's halo (how far it reads past a tile) is given so
+ * that tiled processing is exact (tests/test_filters.c checks it). Every function takes params == NULL as the defaults of its
+ * *_params_init (). On failure a function returns NULL with a GError and changes nothing.
  */
 #ifndef RETE_FILTERS_H
 #define RETE_FILTERS_H
