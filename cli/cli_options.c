@@ -188,6 +188,12 @@ rete_cli_model_dirs (void)
   return (char **) g_ptr_array_free (dirs, FALSE);
 }
 
+static gint
+compare_names (gconstpointer a, gconstpointer b)
+{
+  return g_strcmp0 (*(const char *const *) a, *(const char *const *) b);
+}
+
 char *
 rete_cli_find_model (const char *name_or_file, GError **error)
 {
@@ -210,7 +216,7 @@ rete_cli_find_model (const char *name_or_file, GError **error)
         return g_steal_pointer (&path);
     }
   /* Say where we looked and what is there. */
-  GString *found = g_string_new (NULL);
+  GPtrArray *names = g_ptr_array_new_with_free_func (g_free);
   GString *looked = g_string_new (NULL);
   for (int i = 0; dirs[i] != NULL; i++)
     {
@@ -219,11 +225,15 @@ rete_cli_find_model (const char *name_or_file, GError **error)
       const char *name;
       while (dir && (name = g_dir_read_name (dir)) != NULL)
         if (g_str_has_suffix (name, ".safetensors"))
-          g_string_append_printf (found, "%s%.*s", found->len ? ", " : "",
-                                  (int) (strlen (name) - strlen (".safetensors")), name);
+          g_ptr_array_add (names, g_strndup (name, strlen (name) - strlen (".safetensors")));
       if (dir)
         g_dir_close (dir);
     }
+  g_ptr_array_sort (names, compare_names);
+  GString *found = g_string_new (NULL);
+  for (guint i = 0; i < names->len; i++)
+    g_string_append_printf (found, "%s%s", i ? ", " : "", (const char *) names->pdata[i]);
+  g_ptr_array_free (names, TRUE);
   g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_USAGE,
                "--model %s: no such model file, and no model of that name in %s (models found: "
                "%s). Give a model file, set RETE_MODEL_DIR, or choose a classical --method "

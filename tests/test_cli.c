@@ -15,11 +15,13 @@
 #include <glib/gstdio.h>
 
 #include "rete_io.h"
+#include "rete_nn.h"
 #include "rete_test.h"
 
 static char *rete_binary;
 static char *photos;   /* folder: 3 synthetic photographs with their truth (400x400) */
 static char *maps;     /* frangi maps of photos, made once */
+static char *model_dir; /* RETE_MODEL_DIR of the runs */
 
 typedef struct {
   int status;
@@ -41,6 +43,7 @@ test_environment (void)
   char **env = g_get_environ ();
   env = g_environ_setenv (env, "RETE_NO_LIVE_PROGRESS", "1", TRUE);
   env = g_environ_setenv (env, "LC_ALL", "C", TRUE);
+  env = g_environ_setenv (env, "RETE_MODEL_DIR", model_dir, TRUE);
   return env;
 }
 
@@ -380,6 +383,54 @@ test_vessels_learned (void)
     check_maps (out, stems[i]);
 }
 
+/* The learned method's plumbing with a tiny untrained U-Net (the maps mean nothing): found
+ * by name in RETE_MODEL_DIR and by file; a broken model file is refused with its reason. */
+static void
+test_vessels_tiny_model (void)
+{
+  g_autofree char *models = tmp ("models");
+  g_mkdir_with_parents (models, 0777);
+  ReteUnetConfig config;
+  rete_unet_config_init (&config);
+  config.levels = 2;
+  config.base_filters = 2;
+  config.convs_per_block = 1;
+  GError *error = NULL;
+  ReteUnet *net = rete_unet_new (&config, 7, &error);
+  g_assert_no_error (error);
+  g_autoptr (ReteModel) model = rete_model_new (net);
+  rete_model_set_meta (model, "name", "tiny");
+  g_autofree char *path = g_build_filename (models, "tiny.safetensors", NULL);
+  g_assert_true (rete_model_save (model, path, &error));
+  g_assert_no_error (error);
+  g_autofree char *bad = g_build_filename (models, "broken.safetensors", NULL);
+  g_assert_true (g_file_set_contents (bad, "not a model", -1, NULL));
+
+  char *saved = model_dir;
+  model_dir = models;
+  g_autofree char *out = tmp ("vessels-tiny");
+  g_autoptr (Run) by_name = rete ("vessels", "--model", "tiny", "-o", out, photos, NULL);
+  g_autofree char *out2 = tmp ("vessels-tiny-file");
+  g_autoptr (Run) by_file = rete ("vessels", "--method", "learned", "--model", path, "-o", out2,
+                                  photos, NULL);
+  g_autoptr (Run) broken = rete ("vessels", "--model", "broken", "-o", out, photos, NULL);
+  g_autoptr (Run) unknown = rete ("vessels", "--model", "absent", "-o", out, photos, NULL);
+  model_dir = saved;
+  g_assert_cmpint (by_name->status, ==, 0);
+  assert_contains (by_name->err, "U-Net tiny");
+  g_assert_cmpint (by_file->status, ==, 0);
+  for (gsize i = 0; i < G_N_ELEMENTS (stems); i++)
+    {
+      g_autofree char *a = g_strdup_printf ("%s/%s-fundus-vessel-probability.png", out, stems[i]);
+      g_autofree char *b = g_strdup_printf ("%s/%s-fundus-vessel-probability.png", out2, stems[i]);
+      g_assert_true (same_pixels (a, b));
+    }
+  g_assert_cmpint (broken->status, ==, 1);
+  assert_contains (broken->err, "cannot use the model");
+  g_assert_cmpint (unknown->status, ==, 2);
+  assert_contains (unknown->err, "models found: broken, tiny");
+}
+
 static void
 test_vessels_jobs_give_same_maps (void)
 {
@@ -689,7 +740,7 @@ main (int argc, char **argv)
       g_printerr ("test_cli: %s is not built (set RETE_BUILD_DIR)\n", rete_binary);
       return 1;
     }
-  g_setenv ("RETE_MODEL_DIR", g_build_filename (rete_test_source_dir (), "models", NULL), TRUE);
+  model_dir = g_build_filename (rete_test_source_dir (), "models", NULL);
   /* The photographs every test reads, and their Frangi maps. */
   photos = tmp ("photos");
   maps = tmp ("maps");
@@ -718,6 +769,7 @@ main (int argc, char **argv)
       g_test_add_data_func (path, methods[i], test_vessels_method);
     }
   g_test_add_func ("/cli/vessels/learned", test_vessels_learned);
+  g_test_add_func ("/cli/vessels/learned-tiny-model", test_vessels_tiny_model);
   g_test_add_func ("/cli/vessels/jobs-give-same-maps", test_vessels_jobs_give_same_maps);
   g_test_add_func ("/cli/agreement/table-csv-json-roc", test_agreement);
   g_test_add_func ("/cli/agreement/no-vessel-reference", test_agreement_no_vessel_reference);
