@@ -7,6 +7,7 @@
  * through GEGL under io.c's lock. */
 #include "rete_cli.h"
 
+#include <stdarg.h>
 #include <stdio.h>
 #include <string.h>
 #include <unistd.h>
@@ -140,8 +141,8 @@ rete_cli_progress_done (ReteCliProgress *p, const char *name, gboolean ok, const
         fprintf (stderr, "[%d/%d] FAILED: %s: %s\n", k, p->n_items, name, message);
     }
   else if (!p->quiet)
-    fprintf (stderr, "[%d/%d] %s: %s%s(%.1f s)\n", k, p->n_items, name, message ? message : "ok",
-             message ? " " : " ", seconds);
+    fprintf (stderr, "[%d/%d] %s: ok%s%s (%.1f s)\n", k, p->n_items, name, message ? ", " : "",
+             message ? message : "", seconds);
   draw_line (p);
   fflush (stderr);
   g_mutex_unlock (&p->lock);
@@ -185,7 +186,9 @@ static gpointer
 batch_worker (gpointer data)
 {
   Batch *batch = data;
-  ReteCliItem item = { batch->progress, g_atomic_int_add (&batch->slot_counter, 1), NULL };
+  char *message = NULL;
+  ReteCliItem item = { batch->progress, g_atomic_int_add (&batch->slot_counter, 1), NULL,
+                       &message };
   for (;;)
     {
       int index = g_atomic_int_add (&batch->next, 1);
@@ -206,10 +209,23 @@ batch_worker (gpointer data)
                                     error ? error->message : "failed (no reason given)", seconds);
         }
       else if (batch->progress)
-        rete_cli_progress_done (batch->progress, item.name, TRUE, NULL, seconds);
+        rete_cli_progress_done (batch->progress, item.name, TRUE, message, seconds);
       g_clear_error (&error);
+      g_clear_pointer (&message, g_free);
     }
   return NULL;
+}
+
+void
+rete_cli_item_set_message (const ReteCliItem *item, const char *format, ...)
+{
+  if (item == NULL || item->message == NULL)
+    return;
+  va_list args;
+  va_start (args, format);
+  g_free (*item->message);
+  *item->message = g_strdup_vprintf (format, args);
+  va_end (args);
 }
 
 int

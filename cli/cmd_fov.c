@@ -28,7 +28,11 @@ fov_one (int index, const ReteCliItem *item, gpointer user_data, GError **error)
   g_autoptr (ReteImage) fov = rete_fov_detect (photo, &run->params, error);
   if (fov == NULL)
     return FALSE;
-  return rete_cli_write_image (run->guard, fov, out, 8, error);
+  if (!rete_cli_write_image (run->guard, fov, out, 8, error))
+    return FALSE;
+  rete_cli_item_set_message (item, "FOV %.1f %% of the frame",
+                             100.0 * rete_mask_count (fov) / rete_image_n_pixels (fov));
+  return TRUE;
 }
 
 static const char description[] =

@@ -90,6 +90,9 @@ vessels_work (VesselRun *run, const ReteCliInput *input, VesselRow *row, const R
   row->vessel_fraction = n_fov ? (double) n_vessel / n_fov : NAN;
   rete_vessel_result_clear (&result);
   row->seconds = (g_get_monotonic_time () - start) / 1e6;
+  if (ok)
+    rete_cli_item_set_message (item, "threshold %.3g, vessel %.1f %% of the FOV", row->threshold,
+                               100.0 * row->vessel_fraction);
   return ok;
 }
 

@@ -153,7 +153,12 @@ typedef struct {
   ReteCliProgress *progress;
   int slot;         /* 0..n_jobs-1: which worker holds the item */
   const char *name; /* the item's name for messages */
+  char **message;   /* set through rete_cli_item_set_message */
 } ReteCliItem;
+
+/* A short result for the item's "done" line ("threshold 0.21, vessel 9.4 % of the FOV"). */
+void rete_cli_item_set_message (const ReteCliItem *item, const char *format, ...)
+  G_GNUC_PRINTF (2, 3);
 
 /* A ReteProgressFunc for librete calls inside an item (updates the live line). */
 gboolean rete_cli_item_progress (double fraction, const char *message, gpointer item);
