@@ -90,11 +90,11 @@ agreement_print_table (const AgreementRun *run)
         }
       printf ("\n");
     }
-  if (run->maps->len > 1)
+  double mean[N_FIGURES];
+  int counts[N_FIGURES];
+  mean_figures (run, mean, counts);
+  if (run->maps->len > 1 && counts[2] > 0)
     {
-      double mean[N_FIGURES];
-      int counts[N_FIGURES];
-      mean_figures (run, mean, counts);
       g_autofree char *label = g_strdup_printf ("mean of %d", counts[2]);
       printf ("%-*s", width, label);
       for (int k = 0; k < N_FIGURES; k++)

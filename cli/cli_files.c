@@ -234,10 +234,16 @@ rete_cli_find_companion (const char *folder, const char *stem, const char *const
                  "%s.png (or .tif, .jpg); rename the one that belongs", what, stem, folder,
                  n_found, stem_base);
   else
-    g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_INPUT,
-                 "no %s for %s in %s (looked for %s.png, .tif, .jpg%s%s and %s_*)", what, stem,
-                 folder, stem_base, extra_suffixes && extra_suffixes[0] ? ", " : "",
-                 extra_suffixes && extra_suffixes[0] ? extra_suffixes[0] : "", stem_base);
+    {
+      GString *tried = g_string_new (NULL);
+      g_string_printf (tried, "%s.png (.tif, .jpg ...)", stem_base);
+      for (int s = 0; extra_suffixes && extra_suffixes[s]; s++)
+        g_string_append_printf (tried, ", %s%s.png", stem_base, extra_suffixes[s]);
+      g_string_append_printf (tried, ", %s_*.png", stem_base);
+      g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_INPUT, "no %s for %s in %s (looked for %s)",
+                   what, stem, folder, tried->str);
+      g_string_free (tried, TRUE);
+    }
   return NULL;
 }
 
