@@ -356,9 +356,11 @@ test_clahe_bad_input (void)
   nan_image->data[100] = NAN;
   g_autoptr (ReteImage) bright = rete_image_copy (grey, NULL);
   bright->data[7] = 1.5f;
-  ReteClaheParams ok, big_kernel, no_clip, clip_high, one_bin, negative;
+  ReteClaheParams ok, big_kernel, no_clip, clip_high, one_bin, negative, too_many;
   rete_clahe_params_init (&ok);
-  big_kernel = no_clip = clip_high = one_bin = negative = ok;
+  big_kernel = no_clip = clip_high = one_bin = negative = too_many = ok;
+  too_many.kernel_width = too_many.kernel_height = 1;
+  too_many.n_bins = 65536;
   big_kernel.kernel_width = 65;
   no_clip.clip_limit = 0.0;
   clip_high.clip_limit = 1.5;
@@ -382,6 +384,7 @@ test_clahe_bad_input (void)
     { "clip limit 0", grey, NULL, &no_clip, RETE_ERROR_INVALID_ARGUMENT },
     { "clip limit 1.5", grey, NULL, &clip_high, RETE_ERROR_INVALID_ARGUMENT },
     { "one bin", grey, NULL, &one_bin, RETE_ERROR_INVALID_ARGUMENT },
+    { "one-pixel regions of 65536 bins", grey, NULL, &too_many, RETE_ERROR_INVALID_ARGUMENT },
   };
   for (gsize i = 0; i < G_N_ELEMENTS (cases); i++)
     {
@@ -538,7 +541,8 @@ main (int argc, char **argv)
                                                clahe_cases[i].name);
       g_test_add_data_func (path, &clahe_cases[i], test_clahe_matches_skimage);
     }
-  g_test_add_func ("/preprocess/clahe/matches-skimage-on-chase", test_clahe_matches_skimage_on_chase);
+  g_test_add_func ("/preprocess/clahe/matches-skimage-on-chase",
+                   test_clahe_matches_skimage_on_chase);
   g_test_add_func ("/preprocess/clahe/inside-fov", test_clahe_inside_fov);
   g_test_add_func ("/preprocess/clahe/small-fov", test_clahe_small_fov);
   g_test_add_func ("/preprocess/clahe/same-for-any-thread-count", test_clahe_thread_count);

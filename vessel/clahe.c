@@ -162,6 +162,15 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
   t->ny = (t->height + t->kh - 1) / t->kh;
   t->n_bins = params->n_bins;
   t->clip_limit = params->clip_limit;
+  if ((gsize) t->nx * t->ny * t->n_bins > ((gsize) 1 << 25))
+    {
+      /* the mappings (and their pairs) would take more than about 400 MB */
+      g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
+                   "CLAHE with %d×%d contextual regions of %d bins would need too much memory; "
+                   "use larger regions (0 for 1/8 of the image) or fewer bins (256 is usual)",
+                   t->nx, t->ny, t->n_bins);
+      goto fail;
+    }
 
   /* 16-bit value -> 14-bit stretched over the range seen -> bin: skimage's
    * rescale_intensity (float64), np.round, and lut //= 1 + 16384 // nbins. */
@@ -198,10 +207,25 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
   for (int k = 0; k < t->kw; k++)
     weight_x[k] = (float) ((double) k / t->kw); /* np.arange (k) / k */
   c.weight_x = weight_x;
+  gsize tile_row = (gsize) t->nx * t->n_bins;
+  float *pairs = g_new (float, (t->ny + 1) * tile_row * 2);
+  for (int j = 0; j <= t->ny; j++)
+    {
+      const float *above = t->maps + CLAMP (j - 1, 0, t->ny - 1) * tile_row;
+      const float *below = t->maps + CLAMP (j, 0, t->ny - 1) * tile_row;
+      float *pair = pairs + j * tile_row * 2;
+      for (gsize k = 0; k < tile_row; k++)
+        {
+          pair[2 * k] = above[k];
+          pair[2 * k + 1] = below[k];
+        }
+    }
+  c.pairs = pairs;
   rete_parallel_for (t->height, rete_clahe_interpolate_rows, &c);
   rete_parallel_for (t->height, rete_clahe_stretch_rows, &c);
 
   g_free (weight_x);
+  g_free (pairs);
   g_free (t->hist);
   g_free (t->count);
   g_free (t->maps);
@@ -213,6 +237,7 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
   return result;
 
 fail:
+  rete_image_free (result);
   g_free (t->bins);
   g_mutex_clear (&c.lock);
   return NULL;

@@ -137,24 +137,21 @@ row_range (const float *v, const float *f, int n, float *lo, float *hi)
 
 /* Pass 2 (clahe_tiles.c): bins, histograms, mappings.
  * Pass 3: bilinear interpolation between the mappings of the four tiles around each pixel.
- * A row blends its two tile rows once (into `row_maps`); each block of columns then reads two
- * blended mappings. */
+ * `pairs` holds, for each row of blocks, the mappings of the tile above and below side by
+ * side, so that one 8-byte load brings both; the vertical blend comes first, then the
+ * horizontal one. */
 void
 rete_clahe_interpolate_rows (int first, int last, gpointer data)
 {
   ReteClahe *c = data;
   const ReteClaheTiles *t = &c->tiles;
   int nb = t->n_bins, kw = t->kw;
-  float *row_maps = g_new (float, (gsize) t->nx * nb);
   float lo = G_MAXFLOAT, hi = -G_MAXFLOAT;
   for (int y = first; y < last; y++)
     {
       int p = y + t->kh / 2, j = p / t->kh;
       float wy = (float) ((double) (p % t->kh) / t->kh);
-      const float *m0 = t->maps + (gsize) CLAMP (j - 1, 0, t->ny - 1) * t->nx * nb;
-      const float *m1 = t->maps + (gsize) CLAMP (j, 0, t->ny - 1) * t->nx * nb;
-      for (int k = 0; k < t->nx * nb; k++)
-        row_maps[k] = m0[k] + wy * (m1[k] - m0[k]);
+      const float *block_row = c->pairs + (gsize) j * t->nx * nb * 2;
       gsize row = (gsize) y * t->width;
       const guint16 *b = t->bins + row;
       float *out = c->out + row;
@@ -162,28 +159,39 @@ rete_clahe_interpolate_rows (int first, int last, gpointer data)
       for (int jx = 0, x = 0; x < t->width; jx++)
         {
           int start = jx * kw - kw / 2, stop = MIN (start + kw, t->width);
-          const float *left = row_maps + (gsize) CLAMP (jx - 1, 0, t->nx - 1) * nb;
-          const float *right = row_maps + (gsize) CLAMP (jx, 0, t->nx - 1) * nb;
+          const float *left = block_row + (gsize) CLAMP (jx - 1, 0, t->nx - 1) * nb * 2;
+          const float *right = block_row + (gsize) CLAMP (jx, 0, t->nx - 1) * nb * 2;
           const float *w = c->weight_x - start;
 #ifdef __SSE2__
+          __m128 wy4 = _mm_set1_ps (wy), zero = _mm_setzero_ps ();
           for (; x + 4 <= stop; x += 4)
             {
-              __m128 l = _mm_setr_ps (left[b[x]], left[b[x + 1]], left[b[x + 2]], left[b[x + 3]]);
-              __m128 r = _mm_setr_ps (right[b[x]], right[b[x + 1]], right[b[x + 2]],
-                                      right[b[x + 3]]);
-              __m128 o = _mm_add_ps (l, _mm_mul_ps (_mm_loadu_ps (w + x), _mm_sub_ps (r, l)));
-              _mm_storeu_ps (out + x, o);
+              /* (above, below) of the left and right tile for 4 pixels */
+#define PAIR(side, k) ((const __m64 *) (side + 2 * b[x + (k)]))
+              __m128 l01 = _mm_loadh_pi (_mm_loadl_pi (zero, PAIR (left, 0)), PAIR (left, 1));
+              __m128 l23 = _mm_loadh_pi (_mm_loadl_pi (zero, PAIR (left, 2)), PAIR (left, 3));
+              __m128 r01 = _mm_loadh_pi (_mm_loadl_pi (zero, PAIR (right, 0)), PAIR (right, 1));
+              __m128 r23 = _mm_loadh_pi (_mm_loadl_pi (zero, PAIR (right, 2)), PAIR (right, 3));
+#undef PAIR
+              __m128 lt = _mm_shuffle_ps (l01, l23, _MM_SHUFFLE (2, 0, 2, 0));
+              __m128 lb = _mm_shuffle_ps (l01, l23, _MM_SHUFFLE (3, 1, 3, 1));
+              __m128 rt = _mm_shuffle_ps (r01, r23, _MM_SHUFFLE (2, 0, 2, 0));
+              __m128 rb = _mm_shuffle_ps (r01, r23, _MM_SHUFFLE (3, 1, 3, 1));
+              __m128 l = _mm_add_ps (lt, _mm_mul_ps (wy4, _mm_sub_ps (lb, lt)));
+              __m128 r = _mm_add_ps (rt, _mm_mul_ps (wy4, _mm_sub_ps (rb, rt)));
+              _mm_storeu_ps (out + x, _mm_add_ps (l, _mm_mul_ps (_mm_loadu_ps (w + x),
+                                                                 _mm_sub_ps (r, l))));
             }
 #endif
           for (; x < stop; x++)
             {
-              float l = left[b[x]], r = right[b[x]];
+              const float *lp = left + 2 * b[x], *rp = right + 2 * b[x];
+              float l = lp[0] + wy * (lp[1] - lp[0]), r = rp[0] + wy * (rp[1] - rp[0]);
               out[x] = l + w[x] * (r - l);
             }
         }
       row_range (out, t->fov ? t->fov + row : NULL, t->width, &lo, &hi);
     }
-  g_free (row_maps);
   g_mutex_lock (&c->lock);
   c->v_min = MIN (c->v_min, lo);
   c->v_max = MAX (c->v_max, hi);

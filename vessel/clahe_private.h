@@ -30,6 +30,8 @@ typedef struct {
 typedef struct {
   ReteClaheTiles tiles;
   const float *weight_x;  /* (kw) weight of the right tile at each offset in a block */
+  const float *pairs;     /* (ny + 1, nx, n_bins, 2) mappings of tile rows j - 1 and j
+                             (clamped) side by side, for block row j */
   float *out;             /* (height, width) */
   GMutex lock;            /* guards the results of the chunks below */
   float g_min, g_max;     /* input range inside the FOV */
