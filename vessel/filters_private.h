@@ -64,6 +64,12 @@ void rete_convolve_columns (const float *in, float *out, int width, int height, 
 
 /* Checks shared by the vessel filters: grey is one channel and finite; fov (may be NULL) is
  * one channel, same size, finite and not empty. */
+/* The three horizontal passes of a Hessian at once: out0, out1, out2 = rows of one plane
+ * filtered by k0 (symmetric), k1 (antisymmetric), k2 (symmetric), all of the same radius. */
+void rete_convolve_rows3 (const float *in, float *out0, float *out1, float *out2, int width,
+                          int height, const float *k0, const float *k1, const float *k2,
+                          int radius);
+
 /* One output row y of the vertical pass over one plane (kernel as above, 2 radius + 1 taps). */
 void rete_convolve_column_row (const float *plane, int width, int height, int y,
                                const float *kernel, int radius, int parity, float *dst);

@@ -85,6 +85,63 @@ rows_range (int first, int last, gpointer data)
   g_free (buffer);
 }
 
+typedef struct {
+  const float *in;
+  float *out[3];
+  int width;
+  const float *kernel[3]; /* centre taps; parities +1, -1, +1 */
+  int radius;
+} Pass3;
+
+/* The rows filtered by G, G' and G'' of one width in one sweep: each padded row is read once. */
+RETE_VECTOR_CLONES static void
+rows3_range (int first, int last, gpointer data)
+{
+  const Pass3 *p = data;
+  int w = p->width, r = p->radius;
+  const float *k0 = p->kernel[0], *k1 = p->kernel[1], *k2 = p->kernel[2];
+  float *buffer = g_new (float, w + 2 * r);
+  const float *c = buffer + r;
+  for (int row = first; row < last; row++)
+    {
+      const float *src = p->in + (gsize) row * w;
+      float *d0 = p->out[0] + (gsize) row * w, *d1 = p->out[1] + (gsize) row * w;
+      float *d2 = p->out[2] + (gsize) row * w;
+      memcpy (buffer + r, src, w * sizeof (float));
+      for (int i = 0; i < r; i++)
+        {
+          buffer[i] = src[rete_reflect_index (i - r, w)];
+          buffer[w + r + i] = src[rete_reflect_index (w + i, w)];
+        }
+      for (int x = 0; x < w; x++)
+        {
+          d0[x] = k0[0] * c[x];
+          d1[x] = k1[0] * c[x];
+          d2[x] = k2[0] * c[x];
+        }
+      for (int t = 1; t <= r; t++)
+        {
+          float a = k0[t], b = k1[t], e = k2[t];
+          for (int x = 0; x < w; x++)
+            {
+              float sum = c[x - t] + c[x + t], difference = c[x - t] - c[x + t];
+              d0[x] += a * sum;
+              d1[x] += b * difference;
+              d2[x] += e * sum;
+            }
+        }
+    }
+  g_free (buffer);
+}
+
+void
+rete_convolve_rows3 (const float *in, float *out0, float *out1, float *out2, int width,
+                     int height, const float *k0, const float *k1, const float *k2, int radius)
+{
+  Pass3 p = { in, { out0, out1, out2 }, width, { k0 + radius, k1 + radius, k2 + radius }, radius };
+  rete_parallel_for (height, rows3_range, &p);
+}
+
 RETE_VECTOR_CLONES void
 rete_convolve_column_row (const float *plane, int width, int height, int y,
                           const float *kernel, int radius, int parity, float *dst)
