@@ -124,6 +124,22 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
   c.g_max = c.v_max = -G_MAXFLOAT;
   g_mutex_init (&c.lock);
   ReteImage *result = NULL;
+  t->kw = params->kernel_width > 0 ? params->kernel_width : MAX (grey->width / 8, 1);
+  t->kh = params->kernel_height > 0 ? params->kernel_height : MAX (grey->height / 8, 1);
+  t->nx = (t->width + t->kw - 1) / t->kw;
+  t->ny = (t->height + t->kh - 1) / t->kh;
+  t->n_bins = params->n_bins;
+  t->clip_limit = params->clip_limit;
+  if ((gsize) t->nx * t->ny * t->n_bins > ((gsize) 1 << 25))
+    {
+      /* the mappings (and their pairs) would take more than about 400 MB */
+      g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
+                   "CLAHE with %d×%d contextual regions of %d bins would need too much memory; "
+                   "use larger regions (0 for 1/8 of the image) or fewer bins (256 is usual)",
+                   t->nx, t->ny, t->n_bins);
+      goto fail;
+    }
+
   t->bins = g_try_new (guint16, rete_image_n_pixels (grey));
   if (t->bins == NULL)
     {
@@ -156,22 +172,6 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
   if (result == NULL)
     goto fail;
   c.out = result->data;
-  t->kw = params->kernel_width > 0 ? params->kernel_width : MAX (grey->width / 8, 1);
-  t->kh = params->kernel_height > 0 ? params->kernel_height : MAX (grey->height / 8, 1);
-  t->nx = (t->width + t->kw - 1) / t->kw;
-  t->ny = (t->height + t->kh - 1) / t->kh;
-  t->n_bins = params->n_bins;
-  t->clip_limit = params->clip_limit;
-  if ((gsize) t->nx * t->ny * t->n_bins > ((gsize) 1 << 25))
-    {
-      /* the mappings (and their pairs) would take more than about 400 MB */
-      g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
-                   "CLAHE with %d×%d contextual regions of %d bins would need too much memory; "
-                   "use larger regions (0 for 1/8 of the image) or fewer bins (256 is usual)",
-                   t->nx, t->ny, t->n_bins);
-      goto fail;
-    }
-
   /* 16-bit value -> 14-bit stretched over the range seen -> bin: skimage's
    * rescale_intensity (float64), np.round, and lut //= 1 + 16384 // nbins. */
   int u_min = (int) rint (c.g_min * 65535.0f), u_max = (int) rint (c.g_max * 65535.0f);
