@@ -88,7 +88,9 @@ typedef struct {
   gboolean closed;          /* a loop with no junction or end point */
   double length;            /* arc length of the smoothed centre line (curvature_sigma) */
   double chord;             /* straight distance between its ends (0 for a loop) */
-  double calibre_mean;      /* vessel width across the segment, mean over its pixels */
+  double calibre_mean;      /* vessel width across the segment, mean over its pixels (within
+                               ±0.5 px on bands 1.25–20 px wide at any angle; lines 1 px wide
+                               read 1.25–1.7 px) */
   double calibre_sd;        /* standard deviation of the width along it */
   double tortuosity;        /* arc/chord ratio (>= 1; NaN for loops and chords < 1 px) */
   double curvature_index;   /* total squared curvature per unit length, ∫κ² ds / L, in 1/unit²
@@ -112,7 +114,9 @@ typedef struct {
   gsize skeleton_pixels;       /* after pruning */
   double skeleton_length;      /* unit: sum of segment lengths */
   double length_density;       /* skeleton length / FOV area, 1/unit */
-  int n_junctions;             /* junction clusters (adjacent junction pixels count once) */
+  int n_junctions;             /* junction clusters (adjacent junction pixels count once); a
+                                  crossing of two vessels is junctions too (a map has no depth),
+                                  usually two joined by a short segment */
   int n_end_points;
   int n_segments;
   int n_pruned;                /* spurs and short pieces removed by min_segment_length */
