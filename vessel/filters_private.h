@@ -94,6 +94,13 @@ void rete_filters_finish_map (ReteImage *response, const ReteImage *fov, double 
  * (scipy.ndimage.uniform_filter). Halo: (size - 1) / 2. */
 ReteImage *rete_box_mean (const ReteImage *image, int size, GError **error);
 
+/* matched_kernel.c: parameter checks, the kernels' half size floor (hypot (3 sigma, L / 2)),
+ * and kernel k (fdog: the FDOG kernel) into k_out, (2 half + 1)^2 floats. */
+gboolean rete_matched_check (const ReteMatchedParams *params, GError **error);
+int rete_matched_half (const ReteMatchedParams *params);
+void rete_matched_build_kernel (const ReteMatchedParams *params, int k, gboolean fdog, int half,
+                                float *k_out);
+
 G_END_DECLS
 
 #endif /* RETE_FILTERS_PRIVATE_H */

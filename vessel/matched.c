@@ -3,13 +3,7 @@
  * first-derivative-of-Gaussian variant (MF-FDOG) of Zhang et al., "Retinal vessel extraction
  * by matched filter with first-order derivative of Gaussian", Pattern Recognition 43, 2010.
  *
- * Kernels (Chaudhuri 1989, eq. 3-6): in coordinates rotated by theta_k = k pi / n,
- *   u = x cos theta + y sin theta (across the vessel), v = -x sin theta + y cos theta (along),
- * the neighbourhood N = { |u| <= 3 sigma, |v| <= L / 2 } of integer offsets, and
- *   K_k(x, y) = -exp (-u^2 / (2 sigma^2)) on N, minus its mean over N (eq. 6), 0 elsewhere.
- * Zhang 2010, eq. 3: the FDOG kernel F_k(x, y) = -u / (sqrt (2 pi) sigma^3) exp (-u^2 / (2 sigma^2))
- * on the same N. Both are scaled to unit energy (sum of squares 1), so that responses at
- * different sigma and orientations compare fairly (the matched-filter criterion).
+ * Kernels K_k (Chaudhuri 1989, eq. 3-6) and F_k (Zhang 2010, eq. 3): matched_kernel.c.
  *
  * Responses: H = max_k (K_k (*) I); for MF-FDOG also D = |F_k* (*) I| at the orientation k*
  * that gave H, its local mean Dbar over a W x W window normalised to [0,1] (Dhat = Dbar / max),
@@ -27,107 +21,6 @@
 
 #include <math.h>
 #include <string.h>
-
-void
-rete_matched_params_init (ReteMatchedParams *params)
-{
-  params->sigma = 4;   /* tuned on CHASE_DB1 (999x960): tests/CHASE-CLASSICAL.md */
-  params->length = 21;
-  params->n_orientations = 12;
-  params->use_fdog = FALSE;
-  params->fdog_window = 31;
-  params->fdog_c = 2.3;
-}
-
-static gboolean
-matched_check (const ReteMatchedParams *p, GError **error)
-{
-  const char *what = NULL;
-  if (p == NULL)
-    what = "no parameters were given; start from rete_matched_params_init ()";
-  else if (!(isfinite (p->sigma) && p->sigma > 0 && p->sigma <= 20))
-    what = "sigma must be above 0 and at most 20 pixels (about a quarter of the vessel width)";
-  else if (!(isfinite (p->length) && p->length >= 1 && p->length <= 100))
-    what = "the length L must be between 1 and 100 pixels (9 as in Chaudhuri 1989)";
-  else if (p->n_orientations < 1 || p->n_orientations > 180)
-    what = "the number of orientations must be between 1 and 180 (12 as in Chaudhuri 1989)";
-  else if (p->use_fdog && (p->fdog_window < 3 || p->fdog_window % 2 == 0 || p->fdog_window > 1001))
-    what = "the FDOG mean window must be odd, between 3 and 1001 pixels (31 is usual)";
-  else if (p->use_fdog && !(isfinite (p->fdog_c) && p->fdog_c >= 0))
-    what = "the FDOG weight c must be 0 or above (2 to 3 in Zhang 2010)";
-  if (what == NULL)
-    return TRUE;
-  if (p == NULL)
-    g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT, "matched filter: %s", what);
-  else
-    g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
-                 "matched filter: %s (sigma %g, L %g, %d orientations, window %d, c %g)", what,
-                 p->sigma, p->length, p->n_orientations, p->fdog_window, p->fdog_c);
-  return FALSE;
-}
-
-static int
-kernel_half (const ReteMatchedParams *p)
-{
-  return (int) floor (hypot (3 * p->sigma, p->length / 2) + 1e-9);
-}
-
-/* The kernel of orientation k into k_out (side 2 half + 1), zero-mean, unit energy. */
-static void
-build_kernel (const ReteMatchedParams *p, int k, gboolean fdog, int half, float *k_out)
-{
-  int side = 2 * half + 1;
-  double theta = G_PI * k / p->n_orientations, co = cos (theta), si = sin (theta);
-  double s = p->sigma, sum = 0;
-  int count = 0;
-  double *value = g_new0 (double, side * side);
-  gboolean *inside = g_new0 (gboolean, side * side);
-  for (int y = -half; y <= half; y++)
-    for (int x = -half; x <= half; x++)
-      {
-        double u = x * co + y * si, v = -x * si + y * co;
-        if (fabs (u) > 3 * s + 1e-9 || fabs (v) > p->length / 2 + 1e-9)
-          continue;
-        int i = (y + half) * side + x + half;
-        double g = exp (-u * u / (2 * s * s));
-        value[i] = fdog ? -u / (sqrt (2 * G_PI) * s * s * s) * g : -g;
-        inside[i] = TRUE;
-        sum += value[i];
-        count++;
-      }
-  double mean = sum / MAX (count, 1), energy = 0;
-  for (int i = 0; i < side * side; i++)
-    if (inside[i])
-      {
-        value[i] -= mean;
-        energy += value[i] * value[i];
-      }
-  double scale = energy > 0 ? 1 / sqrt (energy) : 0;
-  for (int i = 0; i < side * side; i++)
-    k_out[i] = (float) (value[i] * scale);
-  g_free (value);
-  g_free (inside);
-}
-
-float *
-rete_matched_kernel (const ReteMatchedParams *params, int k, gboolean fdog, int *size,
-                     GError **error)
-{
-  if (!matched_check (params, error))
-    return NULL;
-  if (k < 0 || k >= params->n_orientations)
-    {
-      g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_INVALID_ARGUMENT,
-                   "matched filter: orientation %d does not exist; give 0 to %d", k,
-                   params->n_orientations - 1);
-      return NULL;
-    }
-  int half = kernel_half (params);
-  float *kernel = g_new (float, (2 * half + 1) * (2 * half + 1));
-  build_kernel (params, k, fdog, half, kernel);
-  *size = 2 * half + 1;
-  return kernel;
-}
 
 /* The non-zero taps of one kernel with offset (dy, dx) > (0, 0) in raster order, paired
  * with their mirror (-dy, -dx); the centre tap apart. */
@@ -147,7 +40,7 @@ typedef struct {
 } Matched;
 
 static void
-taps_from_kernel (const float *kernel, int half, int stride, gboolean antisymmetric, Taps *t)
+taps_from_kernel (const float *kernel, int half, int stride, Taps *t)
 {
   int side = 2 * half + 1;
   t->offset = g_new (int, side * side / 2 + 1);
@@ -161,7 +54,6 @@ taps_from_kernel (const float *kernel, int half, int stride, gboolean antisymmet
         t->offset[t->n] = dy * stride + dx;
         t->weight[t->n++] = kernel[i];
       }
-  (void) antisymmetric;
 }
 
 /* acc[x] = sum over taps of w p[x + o] + (+-) w p[x - o] for x in [0, width). The row is
@@ -253,7 +145,7 @@ static gboolean
 matched_responses (const ReteImage *grey, const ReteMatchedParams *params, float *h_out,
                    float *d_out, GError **error)
 {
-  int w = grey->width, h = grey->height, half = kernel_half (params);
+  int w = grey->width, h = grey->height, half = rete_matched_half (params);
   int stride = w + 2 * half, n_k = params->n_orientations;
   float *padded = g_try_malloc ((gsize) stride * (h + 2 * half) * sizeof (float));
   if (padded == NULL)
@@ -274,12 +166,12 @@ matched_responses (const ReteImage *grey, const ReteMatchedParams *params, float
   Taps *mf = g_new0 (Taps, n_k), *fdog = d_out ? g_new0 (Taps, n_k) : NULL;
   for (int k = 0; k < n_k; k++)
     {
-      build_kernel (params, k, FALSE, half, kernel);
-      taps_from_kernel (kernel, half, stride, FALSE, &mf[k]);
+      rete_matched_build_kernel (params, k, FALSE, half, kernel);
+      taps_from_kernel (kernel, half, stride, &mf[k]);
       if (fdog != NULL)
         {
-          build_kernel (params, k, TRUE, half, kernel);
-          taps_from_kernel (kernel, half, stride, TRUE, &fdog[k]);
+          rete_matched_build_kernel (params, k, TRUE, half, kernel);
+          taps_from_kernel (kernel, half, stride, &fdog[k]);
         }
     }
   Matched m = { w, h, half, stride, padded, n_k, mf, fdog, h_out, d_out };
@@ -310,7 +202,7 @@ rete_matched_raw (const ReteImage *grey, const ReteMatchedParams *params, GError
       rete_matched_params_init (&defaults);
       params = &defaults;
     }
-  if (!rete_filters_check_input (grey, NULL, "matched filter", error) || !matched_check (params, error))
+  if (!rete_filters_check_input (grey, NULL, "matched filter", error) || !rete_matched_check (params, error))
     return NULL;
   ReteImage *out = rete_image_new_like (grey, 1, error);
   if (out != NULL && !matched_responses (grey, params, out->data, NULL, error))
@@ -335,9 +227,9 @@ rete_vessel_matched_threshold (const ReteImage *grey, const ReteImage *fov,
       rete_matched_params_init (&defaults);
       params = &defaults;
     }
-  if (!rete_filters_check_input (grey, fov, "matched filter", error) || !matched_check (params, error))
+  if (!rete_filters_check_input (grey, fov, "matched filter", error) || !rete_matched_check (params, error))
     return NULL;
-  int half = kernel_half (params);
+  int half = rete_matched_half (params);
   ReteImage *filled = rete_filters_fill_outside_fov (grey, fov, MAX (10.0, 2.0 * half), error);
   if (filled == NULL)
     return NULL;
