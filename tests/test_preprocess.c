@@ -301,6 +301,22 @@ test_clahe_inside_fov (void)
   g_assert_cmpfloat (moved, >, 0.05);
 }
 
+/* A FOV that covers everything gives exactly the result without a FOV (the two paths of
+ * the histogram pass agree). */
+static void
+test_clahe_whole_fov (void)
+{
+  g_autoptr (ReteImage) image = make_picture (301, 277, 12, 0);
+  g_autoptr (ReteImage) all = rete_image_new (301, 277, 1, NULL);
+  for (gsize i = 0; i < rete_image_n_pixels (all); i++)
+    all->data[i] = 1.0f;
+  ReteClaheParams params = { 37, 23, 0.02, 256 };
+  g_autoptr (ReteImage) with = rete_clahe (image, all, &params, NULL);
+  g_autoptr (ReteImage) without = rete_clahe (image, NULL, &params, NULL);
+  gsize size = rete_image_n_pixels (image) * sizeof (float);
+  g_assert_cmpmem (with->data, size, without->data, size);
+}
+
 /* A FOV much smaller than a tile, and one along the edge, still give a full mapping. */
 static void
 test_clahe_small_fov (void)
@@ -544,6 +560,7 @@ main (int argc, char **argv)
   g_test_add_func ("/preprocess/clahe/matches-skimage-on-chase",
                    test_clahe_matches_skimage_on_chase);
   g_test_add_func ("/preprocess/clahe/inside-fov", test_clahe_inside_fov);
+  g_test_add_func ("/preprocess/clahe/whole-fov", test_clahe_whole_fov);
   g_test_add_func ("/preprocess/clahe/small-fov", test_clahe_small_fov);
   g_test_add_func ("/preprocess/clahe/same-for-any-thread-count", test_clahe_thread_count);
   g_test_add_func ("/preprocess/clahe/bad-input", test_clahe_bad_input);
