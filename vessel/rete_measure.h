@@ -6,16 +6,18 @@
  * Methods (each cited again in the .c file that implements it):
  *   skeleton       Zhang & Suen, "A fast parallel algorithm for thinning digital patterns",
  *                  Commun. ACM 27(3):236–239, 1984, with the correction of Lü & Wang, Commun.
- *                  ACM 29(3):239–242, 1986 that keeps diagonal strokes (skeleton.c)
+ *                  ACM 29(3):239–242, 1986 that keeps diagonal strokes, then staircase
+ *                  corners removed so that it is one pixel thin (skeleton.c)
  *   distance       exact Euclidean distance transform, Felzenszwalb & Huttenlocher,
  *                  "Distance transforms of sampled functions", Theory of Computing 8:415–428,
  *                  2012 (distance.c)
  *   graph          segments between junction clusters on the 8-connected skeleton (graph.c)
  *   calibre        twice the distance to the background along the skeleton, with a sub-pixel
- *                  apex fitted across the vessel (calibre.c)
+ *                  apex fitted across the vessel (segment.c)
+ *   length         of the centre line smoothed with a Gaussian of curvature_sigma (segment.c)
  *   tortuosity     arc/chord ratio; total squared curvature per unit length (Hart, Goldbaum,
  *                  Côté, Kube, Nelson, "Measurement and classification of retinal vascular
- *                  tortuosity", Int. J. Med. Inform. 53:239–252, 1999) (tortuosity.c)
+ *                  tortuosity", Int. J. Med. Inform. 53:239–252, 1999) (segment.c)
  *   fractal        box-counting dimension, boxes of 2^k pixels, least-squares slope of
  *                  log N(s) against log(1/s) (fractal.c)
  *
@@ -52,13 +54,13 @@ typedef struct {
                                   most twice the image diagonal */
   double fov_diameter_mm;      /* RETE_CALIBRATION_FOV_DIAMETER: the same in mm, in
                                   [RETE_MEASURE_MIN_FOV_MM, RETE_MEASURE_MAX_FOV_MM] */
-  double min_segment_length;   /* pixels; terminal segments (end point to junction) and isolated
+  double min_segment_length;   /* pixels, whatever the calibration; terminal segments (end point to junction) and isolated
                                   pieces shorter than this are pruned from the skeleton once
                                   before the graph is measured (spurs of thinning). 0 = keep all.
                                   Default 10. */
-  double curvature_sigma;      /* pixels; Gaussian smoothing of the skeleton path before curvature
-                                  is taken (default 6: the pixel staircase of a
-                                  digital curve still adds curvature at 4; >= 0.5) */
+  double curvature_sigma;      /* pixels; Gaussian smoothing of the skeleton path before its
+                                  length and curvature are taken (default 6: the pixel staircase
+                                  of a digital curve still adds curvature at 4; 0.5 to 100) */
   gboolean want_images;        /* TRUE (default): fill skeleton and point_type below */
   ReteProgressFunc progress;   /* may be NULL; FALSE from it cancels (RETE_ERROR_CANCELLED) */
   gpointer progress_data;
