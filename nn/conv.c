@@ -150,10 +150,10 @@ void
 conv3x3_forward_act (float *out, const float *inp, const float *weight, const float *bias,
                      int N, int C_in, int C_out, int H, int W, gboolean relu)
 {
-  static int use_direct = -1;
-  if (use_direct < 0) /* RETE_NN_GEMM=1 forces the GEMM path (for tests and comparisons) */
-    use_direct = conv3x3_direct_available () && g_getenv ("RETE_NN_GEMM") == NULL;
-  if (use_direct)
+  static gsize choice = 0; /* 1 + (direct kernel?) once decided */
+  if (g_once_init_enter (&choice)) /* RETE_NN_GEMM forces the GEMM path (tests, comparisons) */
+    g_once_init_leave (&choice, 1 + (conv3x3_direct_available () && g_getenv ("RETE_NN_GEMM") == NULL));
+  if (choice == 2)
     conv3x3_forward_direct (out, inp, weight, bias, N, C_in, C_out, H, W, relu);
   else
     conv3x3_forward_gemm (out, inp, weight, bias, N, C_in, C_out, H, W, relu);

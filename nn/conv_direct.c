@@ -96,13 +96,8 @@ direct_band (float *out_n, const float *pad, const float *wt, const float *bias,
 gboolean
 conv3x3_direct_available (void)
 {
-  static int available = -1;
-  if (available < 0)
-    {
-      __builtin_cpu_init ();
-      available = __builtin_cpu_supports ("avx512f") && __builtin_cpu_supports ("fma");
-    }
-  return available;
+  __builtin_cpu_init (); /* idempotent; the answer is fixed once libgcc has probed the CPU */
+  return __builtin_cpu_supports ("avx512f") && __builtin_cpu_supports ("fma");
 }
 
 void
