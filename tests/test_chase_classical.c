@@ -7,7 +7,7 @@
  * Fraz 2012 reports for the second observer on CHASE_DB1 accuracy 0.9545, sensitivity 0.7425,
  * specificity 0.9793 (from memory; their FOV masks and image set — all 28 — differ from ours).
  *
- * Images: all 20 of the training part by default (41 s of CPU time in all, so about 25 s on two
+ * Images: all 20 of the training part by default (33 s of CPU time in all, so about 20 s on two
  * free cores; the filters' own time is printed); RETE_CHASE_IMAGES=n takes the first n of the
  * fixed list instead.
  * Floors: each method's mean AUC must stay above a floor a little below the value measured when
