@@ -4,7 +4,10 @@
  * vessel, 0 outside the FOV. Borders are read as scipy.ndimage's 'reflect' mode
  * (d c b a | a b c d | d c b a), as skimage and OpenCV's BORDER_REFLECT do, so that results can
  * be checked against them; each filter's halo (how far it reads past a tile) is given so
- * that tiled processing is exact (tests/test_filters.c checks it). Every function takes params == NULL as the defaults of its
+ * that tiled processing is exact (tests/test_filters.c checks it). The halo holds for the raw
+ * responses (rete_frangi_raw with c > 0, rete_matched_raw); the vessel maps are then scaled by
+ * statistics of the whole FOV (maximum, means, deviations), which a tiled caller must gather
+ * over all tiles first. Every function takes params == NULL as the defaults of its
  * *_params_init (). On failure a function returns NULL with a GError and changes nothing.
  */
 #ifndef RETE_FILTERS_H
