@@ -187,6 +187,31 @@ mark_range (int first, int last, gpointer data)
     job->doomed[k] = job->table[rete_neighbour_code (job->pixels, job->list[k], job->stride)];
 }
 
+/* Sorts a[0..n) ascending: least-significant-digit radix sort on two 16-bit digits, through
+ * tmp (n entries) and counts (65536). */
+static void
+radix_sort (guint32 *a, guint32 *tmp, gsize n, gsize *counts)
+{
+  if (n < 2)
+    return;
+  for (int shift = 0; shift < 32; shift += 16)
+    {
+      guint32 *from = shift == 0 ? a : tmp, *to = shift == 0 ? tmp : a;
+      memset (counts, 0, sizeof (gsize) << 16);
+      for (gsize k = 0; k < n; k++)
+        counts[(from[k] >> shift) & 0xffffu]++;
+      gsize sum = 0;
+      for (int d = 0; d < 1 << 16; d++)
+        {
+          gsize c = counts[d];
+          counts[d] = sum;
+          sum += c;
+        }
+      for (gsize k = 0; k < n; k++)
+        to[counts[(from[k] >> shift) & 0xffffu]++] = from[k];
+    }
+}
+
 gboolean
 rete_thin_zhang_suen (ReteByteMap *map, ReteThinning variant, ReteProgressFunc progress,
                       gpointer progress_data, double from, double to, GError **error)
@@ -196,10 +221,16 @@ rete_thin_zhang_suen (ReteByteMap *map, ReteThinning variant, ReteProgressFunc p
   guint32 *list = foreground_list (map, &n);
   guint8 *doomed = list && n <= G_MAXINT ? g_try_malloc (MAX (n, 1)) : NULL;
   guint32 *gone = doomed ? g_try_new (guint32, MAX (n, 1)) : NULL;
-  if (gone == NULL)
+  guint32 *woken = gone ? g_try_new (guint32, MAX (n, 1)) : NULL;
+  guint32 *merged = woken ? g_try_new (guint32, MAX (n, 1)) : NULL;
+  gsize *counts = merged ? g_try_new (gsize, 1 << 16) : NULL;
+  if (counts == NULL)
     {
       g_free (list);
       g_free (doomed);
+      g_free (gone);
+      g_free (woken);
+      g_free (merged);
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
                    "not enough memory to thin a %d×%d map (%" G_GSIZE_FORMAT " vessel pixels)",
                    map->width, map->height, n);
@@ -227,8 +258,10 @@ rete_thin_zhang_suen (ReteByteMap *map, ReteThinning variant, ReteProgressFunc p
         {
           job.table = zhang_suen_table[variant == RETE_THINNING_LU_WANG][sub];
           rete_parallel_for ((int) n, mark_range, &job);
-          /* delete and compact the list in one pass, then wake the neighbours of the deleted */
-          gsize kept = 0, n_gone = 0;
+          /* delete and compact the list in one pass, then wake the neighbours of the deleted;
+           * the woken are sorted and merged in, so that the list stays in raster order and
+           * the next marking reads the map in order */
+          gsize kept = 0, n_gone = 0, n_woken = 0;
           for (gsize k = 0; k < n; k++)
             if (doomed[k])
               {
@@ -244,12 +277,24 @@ rete_thin_zhang_suen (ReteByteMap *map, ReteThinning variant, ReteProgressFunc p
                 if (p[j] == 1u)
                   {
                     p[j] |= ACTIVE;
-                    list[kept++] = j;
+                    woken[n_woken++] = j;
                   }
               }
+          radix_sort (woken, gone, n_woken, counts);
+          gsize a = 0, b = 0, out = 0;
+          while (a < kept && b < n_woken)
+            merged[out++] = list[a] < woken[b] ? list[a++] : woken[b++];
+          while (a < kept)
+            merged[out++] = list[a++];
+          while (b < n_woken)
+            merged[out++] = woken[b++];
+          guint32 *swap = list;
+          list = merged;
+          merged = swap;
+          job.list = list;
           removed |= n_gone > 0;
           remaining -= n_gone;
-          n = kept;
+          n = out;
         }
       if (progress != NULL
           && !progress (from + (to - from) * (1.0 - (double) remaining / start), "thinning",
@@ -264,6 +309,9 @@ rete_thin_zhang_suen (ReteByteMap *map, ReteThinning variant, ReteProgressFunc p
   g_free (list);
   g_free (doomed);
   g_free (gone);
+  g_free (woken);
+  g_free (merged);
+  g_free (counts);
   return ok;
 }
 
