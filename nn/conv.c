@@ -105,6 +105,17 @@ weights_by_row (const float *weight, int C_in, int C_out)
   return w;
 }
 
+/* The direct kernel (conv_direct.c) where the processor has AVX-512, unless the environment
+ * sets RETE_NN_GEMM (for tests and comparisons); decided once. */
+static gboolean
+use_direct_kernel (void)
+{
+  static gsize choice = 0; /* 1 + (direct kernel?) once decided */
+  if (g_once_init_enter (&choice))
+    g_once_init_leave (&choice, 1 + (conv3x3_direct_available () && g_getenv ("RETE_NN_GEMM") == NULL));
+  return choice == 2;
+}
+
 /* The forward pass by im2col + GEMM, with the activation applied band by band while the band
  * is in cache. */
 void
@@ -150,10 +161,7 @@ void
 conv3x3_forward_act (float *out, const float *inp, const float *weight, const float *bias,
                      int N, int C_in, int C_out, int H, int W, gboolean relu)
 {
-  static gsize choice = 0; /* 1 + (direct kernel?) once decided */
-  if (g_once_init_enter (&choice)) /* RETE_NN_GEMM forces the GEMM path (tests, comparisons) */
-    g_once_init_leave (&choice, 1 + (conv3x3_direct_available () && g_getenv ("RETE_NN_GEMM") == NULL));
-  if (choice == 2)
+  if (use_direct_kernel ())
     conv3x3_forward_direct (out, inp, weight, bias, N, C_in, C_out, H, W, relu);
   else
     conv3x3_forward_gemm (out, inp, weight, bias, N, C_in, C_out, H, W, relu);
@@ -170,6 +178,11 @@ void
 conv3x3_backward (float *dinp, float *dweight, float *dbias, const float *dout,
                   const float *inp, const float *weight, int N, int C_in, int C_out, int H, int W)
 {
+  if (dinp != NULL && use_direct_kernel ())
+    {
+      conv3x3_backward_input_direct (dinp, dout, weight, N, C_in, C_out, H, W);
+      dinp = NULL; /* done: the GEMMs below give the weight gradient only */
+    }
   int rows = band_rows (W, H);
   int K = 3 * C_in;
   gsize plane = (gsize) H * W;

@@ -260,6 +260,22 @@ test_layer (gconstpointer data)
                             act ? " + ReLU" : "", d);
             g_assert_cmpfloat (d, <=, 1e-5);
           }
+      if (conv3x3_direct_available ())
+        {
+          float *dx = g_new0 (float, s.n_in), *dx_naive = g_new0 (float, s.n_in);
+          float *dw_naive = g_new0 (float, s.n_w), *db_naive = g_new0 (float, s.n_b);
+          for (int k = 0; k < 2; k++) /* twice: it accumulates */
+            {
+              conv3x3_backward_input_direct (dx, r, w, c->N, c->C_in, c->C_out, c->H, c->W);
+              conv3x3_backward_naive (dx_naive, dw_naive, db_naive, r, inp, w, c->N, c->C_in,
+                                      c->C_out, c->H, c->W);
+            }
+          d = relative_diff (dx, dx_naive, s.n_in);
+          g_test_message ("%s: input gradient by the direct kernel vs naive, largest relative "
+                          "difference %.2e (tolerance 1e-5)", c->path, d);
+          g_assert_cmpfloat (d, <=, 1e-5);
+          g_free (dx), g_free (dx_naive), g_free (dw_naive), g_free (db_naive);
+        }
       g_free (fused);
     }
 
