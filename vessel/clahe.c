@@ -46,6 +46,18 @@ rete_clahe_params_init (ReteClaheParams *params)
 }
 
 
+/* Bin of the 16-bit value u when the values seen span u_min..u_max (see rete_clahe). */
+static int
+lut_entry (int u, int u_min, int u_max, int n_bins)
+{
+  double span = u_max - u_min, q;
+  if (span > 0)
+    q = rint ((CLAMP (u, u_min, u_max) - u_min) / span * (GREY_LEVELS - 1.0));
+  else
+    q = MIN (u, GREY_LEVELS - 1);
+  return (int) q / (1 + GREY_LEVELS / n_bins);
+}
+
 /* Mirror ('reflect', edge not repeated) index of p in [0, n). */
 static int
 mirror (int p, int n)
@@ -173,19 +185,26 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
     goto fail;
   c.out = result->data;
   /* 16-bit value -> 14-bit stretched over the range seen -> bin: skimage's
-   * rescale_intensity (float64), np.round, and lut //= 1 + 16384 // nbins. */
+   * rescale_intensity (float64), np.round, and lut //= 1 + 16384 // nbins. The table is a
+   * staircase (every step is monotone), so each step's first value is found by bisection
+   * rather than by evaluating all 65536 entries. */
   int u_min = (int) rint (c.g_min * 65535.0f), u_max = (int) rint (c.g_max * 65535.0f);
-  int bin_size = 1 + GREY_LEVELS / t->n_bins;
-  guint16 *lut = g_new0 (guint16, 65536);
-  double span = u_max - u_min;
-  for (int u = 0; u < 65536; u++)
+  guint16 *lut = g_new (guint16, 65536);
+  int u = 0;
+  while (u < 65536)
     {
-      double q;
-      if (span > 0)
-        q = rint ((CLAMP (u, u_min, u_max) - u_min) / span * (GREY_LEVELS - 1.0));
-      else
-        q = MIN (u, GREY_LEVELS - 1);
-      lut[u] = (guint16) ((int) q / bin_size);
+      int bin = lut_entry (u, u_min, u_max, t->n_bins);
+      int lo = u, hi = 65535; /* last u with this bin: lo has it; find the largest */
+      while (lo < hi)
+        {
+          int mid = lo + (hi - lo + 1) / 2;
+          if (lut_entry (mid, u_min, u_max, t->n_bins) == bin)
+            lo = mid;
+          else
+            hi = mid - 1;
+        }
+      for (; u <= lo; u++)
+        lut[u] = (guint16) bin;
     }
   t->lut = lut;
 
