@@ -117,14 +117,20 @@ compare (Comparison *cmp, const char *what, double ours, JsonObject *object, con
     g_test_message ("  %s: ours %.17g, sklearn %.17g (difference %.3g)", what, ours, ref, diff);
 }
 
-static JsonObject *
-run_reference (double case_threshold, const ReteImage *scores, const ReteImage *reference,
-               const ReteImage *mask, const ReteAgreement *a, JsonParser *parser)
+/* Writes the files of one request to ref_auc_metrics.py (names start with `tag`) and returns
+ * its line: the 7 arguments separated by tabs. */
+static char *
+prepare_request (const char *tag, double case_threshold, const ReteImage *scores,
+                 const ReteImage *reference, const ReteImage *mask, const ReteAgreement *a)
 {
-  g_autofree char *scores_path = rete_test_tmp_path ("scores.npy");
-  g_autofree char *labels_path = rete_test_tmp_path ("labels.npy");
-  g_autofree char *mask_path = rete_test_tmp_path ("mask.npy");
-  g_autofree char *roc_path = rete_test_tmp_path ("roc.npy");
+  g_autofree char *scores_name = g_strconcat (tag, "-scores.npy", NULL);
+  g_autofree char *labels_name = g_strconcat (tag, "-labels.npy", NULL);
+  g_autofree char *mask_name = g_strconcat (tag, "-mask.npy", NULL);
+  g_autofree char *roc_name = g_strconcat (tag, "-roc.npy", NULL);
+  g_autofree char *scores_path = rete_test_tmp_path (scores_name);
+  g_autofree char *labels_path = rete_test_tmp_path (labels_name);
+  g_autofree char *mask_path = rete_test_tmp_path (mask_name);
+  g_autofree char *roc_path = rete_test_tmp_path (roc_name);
   g_assert_true (rete_test_write_image_npy (scores_path, scores, NULL));
   g_assert_true (rete_test_write_image_npy (labels_path, reference, NULL));
   if (mask != NULL)
@@ -139,22 +145,38 @@ run_reference (double case_threshold, const ReteImage *scores, const ReteImage *
   g_ascii_dtostr (threshold, sizeof threshold, case_threshold);
   g_ascii_dtostr (best_dice, sizeof best_dice, a->best_dice_threshold);
   g_ascii_dtostr (best_youden, sizeof best_youden, a->best_youden_threshold);
+  return g_strjoin ("\t", scores_path, labels_path, mask != NULL ? mask_path : "-", threshold,
+                    a->n_roc_points > 0 ? roc_path : "-", best_dice, best_youden, NULL);
+}
+
+/* Runs ref_auc_metrics.py once on all the requests (scikit-learn is slow to import); the
+ * answers, one object per request, or NULL with *skip_reason set. */
+static JsonArray *
+run_requests (GPtrArray *lines, const char *tag, JsonParser *parser, char **skip_reason)
+{
+  g_autofree char *name = g_strconcat (tag, "-requests.txt", NULL);
+  g_autofree char *path = rete_test_tmp_path (name);
+  GString *text = g_string_new (NULL);
+  for (guint k = 0; k < lines->len; k++)
+    g_string_append_printf (text, "%s\n", (const char *) g_ptr_array_index (lines, k));
+  g_assert_true (g_file_set_contents (path, text->str, text->len, NULL));
+  g_string_free (text, TRUE);
   GError *error = NULL;
   gboolean skipped = FALSE;
-  g_autofree char *out = rete_test_python ("ref_auc_metrics.py", &skipped, &error, scores_path,
-                                           labels_path, mask != NULL ? mask_path : "-", threshold,
-                                           a->n_roc_points > 0 ? roc_path : "-", best_dice,
-                                           best_youden, NULL);
+  g_autofree char *out = rete_test_python ("ref_auc_metrics.py", &skipped, &error, "--batch",
+                                           path, NULL);
   if (skipped)
     {
-      g_test_skip (error->message);
+      *skip_reason = g_strdup (error->message);
       g_error_free (error);
       return NULL;
     }
   g_assert_no_error (error);
   g_assert_true (json_parser_load_from_data (parser, out, -1, &error));
   g_assert_no_error (error);
-  return json_node_get_object (json_parser_get_root (parser));
+  JsonArray *answers = json_node_get_array (json_parser_get_root (parser));
+  g_assert_cmpuint (json_array_get_length (answers), ==, lines->len);
+  return answers;
 }
 
 /* Every figure of `a` against sklearn's (ref_auc_metrics.py's JSON). */
@@ -207,44 +229,75 @@ compare_all (Comparison *cmp_out, const ReteAgreement *a, JsonObject *ref, int m
   *cmp_out = cmp;
 }
 
+/* Our figures for every case of the table, and sklearn's, computed once for all of them. */
+static struct {
+  gboolean done;
+  char *skip_reason;
+  JsonParser *parser;
+  JsonArray *answers;
+  ReteAgreement *ours[G_N_ELEMENTS (reference_cases)];
+  double ms[G_N_ELEMENTS (reference_cases)];
+} batch;
+
+static void
+ensure_reference_batch (void)
+{
+  if (batch.done)
+    return;
+  batch.done = TRUE;
+  GPtrArray *lines = g_ptr_array_new_with_free_func (g_free);
+  for (gsize i = 0; i < G_N_ELEMENTS (reference_cases); i++)
+    {
+      const ReferenceCase *c = &reference_cases[i];
+      ReteImage *scores, *reference, *mask;
+      make_case (c, &scores, &reference, &mask);
+      /* the deliberately wrong case: ours sees a reference with 2% of its labels flipped */
+      g_autoptr (ReteImage) ours_reference = rete_image_copy (reference, NULL);
+      if (c->deliberately_wrong)
+        for (gsize k = 0; k < rete_image_n_pixels (reference); k += 50)
+          ours_reference->data[k] = 1.0f - ours_reference->data[k];
+      GError *error = NULL;
+      gint64 t0 = g_get_monotonic_time ();
+      batch.ours[i] = rete_agreement_compute (scores, ours_reference, mask, c->threshold,
+                                              c->max_roc_points, &error);
+      batch.ms[i] = (g_get_monotonic_time () - t0) / 1000.0;
+      g_assert_no_error (error);
+      char tag[16];
+      g_snprintf (tag, sizeof tag, "case%" G_GSIZE_FORMAT, i);
+      g_ptr_array_add (lines, prepare_request (tag, c->threshold, scores, reference, mask,
+                                               batch.ours[i]));
+      rete_image_free (scores);
+      rete_image_free (reference);
+      rete_image_free (mask);
+    }
+  batch.parser = json_parser_new ();
+  batch.answers = run_requests (lines, "cases", batch.parser, &batch.skip_reason);
+  g_ptr_array_free (lines, TRUE);
+}
+
 static void
 test_matches_sklearn (gconstpointer data)
 {
   const ReferenceCase *c = data;
-  ReteImage *scores, *reference, *mask;
-  make_case (c, &scores, &reference, &mask);
-  /* the deliberately wrong case: ours sees a reference with 2% of its labels flipped */
-  g_autoptr (ReteImage) ours_reference = rete_image_copy (reference, NULL);
-  if (c->deliberately_wrong)
-    for (gsize i = 0; i < rete_image_n_pixels (reference); i += 50)
-      ours_reference->data[i] = 1.0f - ours_reference->data[i];
-
-  GError *error = NULL;
-  gint64 t0 = g_get_monotonic_time ();
-  g_autoptr (ReteAgreement) a = rete_agreement_compute (scores, ours_reference, mask, c->threshold,
-                                                        c->max_roc_points, &error);
-  gint64 t1 = g_get_monotonic_time ();
-  g_assert_no_error (error);
-  g_autoptr (JsonParser) parser = json_parser_new ();
-  JsonObject *ref = run_reference (c->threshold, scores, reference, mask, a, parser);
-  if (ref == NULL)
-    goto out;
+  gsize i = (gsize) (c - reference_cases);
+  ensure_reference_batch ();
+  if (batch.answers == NULL)
+    {
+      g_test_skip (batch.skip_reason);
+      return;
+    }
+  const ReteAgreement *a = batch.ours[i];
   Comparison cmp = { 0 };
-  compare_all (&cmp, a, ref, c->max_roc_points);
+  compare_all (&cmp, a, json_array_get_object_element (batch.answers, i), c->max_roc_points);
   g_test_message ("%dx%d, %" G_GSIZE_FORMAT " distinct scores, %d ROC points, %.1f ms: largest "
                   "difference from sklearn %.3g (%s), tolerance %g", c->width, c->height,
-                  a->n_distinct_scores, a->n_roc_points, (t1 - t0) / 1000.0, cmp.worst,
+                  a->n_distinct_scores, a->n_roc_points, batch.ms[i], cmp.worst,
                   cmp.worst_what, TOLERANCE);
   if (c->deliberately_wrong)
     g_assert_cmpfloat (cmp.worst, >, TOLERANCE); /* the checker saw the wrong reference */
   else
     g_assert_cmpfloat (cmp.worst, <=, TOLERANCE);
-out:
-  rete_image_free (scores);
-  rete_image_free (reference);
-  rete_image_free (mask);
 }
-
 
 /* The sklearn documentation's example for roc_auc_score: y = [0, 0, 1, 1],
  * scores = [0.1, 0.4, 0.35, 0.8] give 0.75; average_precision_score's: 0.8333... */
@@ -632,6 +685,10 @@ test_chase_second_observer (void)
 {
   static const char *const names[] = { "Image_01L", "Image_05R" };
   rete_io_init ();
+  GPtrArray *lines = g_ptr_array_new_with_free_func (g_free);
+  GPtrArray *ours = g_ptr_array_new_with_free_func ((GDestroyNotify) rete_agreement_free);
+  JsonParser *parser = NULL;
+  char *skip_reason = NULL;
   for (gsize k = 0; k < G_N_ELEMENTS (names); k++)
     {
       g_autofree char *first = g_strdup_printf ("chase_db1/manual1/%s.png", names[k]);
@@ -641,7 +698,7 @@ test_chase_second_observer (void)
       g_autofree char *second_path = first_path ? rete_test_data_file (second) : NULL;
       g_autofree char *fov_path = second_path ? rete_test_data_file (fov) : NULL;
       if (fov_path == NULL)
-        return; /* skipped, with the reason */
+        goto out; /* skipped, with the reason */
       GError *error = NULL;
       g_autoptr (ReteImage) reference = rete_io_load_grey (first_path, &error);
       g_assert_no_error (error);
@@ -653,22 +710,38 @@ test_chase_second_observer (void)
       const ReteImage *maps[] = { map, soft };
       for (int m = 0; m < 2; m++)
         {
-          g_autoptr (ReteAgreement) a = rete_agreement_compute (maps[m], reference, mask, 0.5, 400, &error);
+          ReteAgreement *a = rete_agreement_compute (maps[m], reference, mask, 0.5, 400, &error);
           g_assert_no_error (error);
-          g_autoptr (JsonParser) parser = json_parser_new ();
-          JsonObject *ref = run_reference (0.5, maps[m], reference, mask, a, parser);
-          if (ref == NULL)
-            return;
-          Comparison cmp = { 0 };
-          compare_all (&cmp, a, ref, 400);
-          g_test_message ("%s, second observer %s: AUC %.4f, accuracy %.4f, sensitivity %.4f, "
-                          "specificity %.4f, Dice %.4f; largest difference from sklearn %.3g "
-                          "(%s), tolerance %g", names[k], m ? "blurred (5x5 mean)" : "binary",
-                          a->auc, a->rates.accuracy, a->rates.sensitivity, a->rates.specificity,
-                          a->rates.dice, cmp.worst, cmp.worst_what, TOLERANCE);
-          g_assert_cmpfloat (cmp.worst, <=, TOLERANCE);
+          g_ptr_array_add (ours, a);
+          char tag[32];
+          g_snprintf (tag, sizeof tag, "chase%" G_GSIZE_FORMAT "-%d", k, m);
+          g_ptr_array_add (lines, prepare_request (tag, 0.5, maps[m], reference, mask, a));
         }
     }
+  parser = json_parser_new ();
+  JsonArray *answers = run_requests (lines, "chase", parser, &skip_reason);
+  if (answers == NULL)
+    {
+      g_test_skip (skip_reason);
+      goto out;
+    }
+  for (guint k = 0; k < ours->len; k++)
+    {
+      const ReteAgreement *a = g_ptr_array_index (ours, k);
+      Comparison cmp = { 0 };
+      compare_all (&cmp, a, json_array_get_object_element (answers, k), 400);
+      g_test_message ("%s, second observer %s: AUC %.4f, accuracy %.4f, sensitivity %.4f, "
+                      "specificity %.4f, Dice %.4f; largest difference from sklearn %.3g "
+                      "(%s), tolerance %g", names[k / 2], k % 2 ? "blurred (5x5 mean)" : "binary",
+                      a->auc, a->rates.accuracy, a->rates.sensitivity, a->rates.specificity,
+                      a->rates.dice, cmp.worst, cmp.worst_what, TOLERANCE);
+      g_assert_cmpfloat (cmp.worst, <=, TOLERANCE);
+    }
+out:
+  g_ptr_array_free (lines, TRUE);
+  g_ptr_array_free (ours, TRUE);
+  g_clear_object (&parser);
+  g_free (skip_reason);
 }
 
 int

@@ -2,6 +2,9 @@
 
 usage: ref_auc_metrics.py SCORES.npy LABELS.npy MASK.npy|- THRESHOLD ROC_THRESHOLDS.npy|- \
            BEST_DICE_THRESHOLD BEST_YOUDEN_THRESHOLD
+       ref_auc_metrics.py --batch REQUESTS.txt
+         (one request a line, its 7 arguments separated by tabs; prints a JSON list, one
+         object per request: scikit-learn is imported once)
 
 SCORES: float32 (any shape); LABELS: uint8 or float32 reference (vessel where >= 0.5);
 MASK: uint8 or float32 (inside where >= 0.5) or '-' for every sample.
@@ -34,8 +37,7 @@ def load(path):
     return np.load(path).reshape(-1)
 
 
-def main():
-    scores_path, labels_path, mask_path, threshold, roc_path, best_dice, best_youden = sys.argv[1:8]
+def figures(scores_path, labels_path, mask_path, threshold, roc_path, best_dice, best_youden):
     threshold, best_dice, best_youden = float(threshold), float(best_dice), float(best_youden)
     s = load(scores_path).astype(np.float32)
     y = load(labels_path).astype(np.float64) >= 0.5
@@ -80,7 +82,16 @@ def main():
                 rt.append(None if i is None else float(tpr[i]))
             out["roc_fpr"], out["roc_tpr"] = rf, rt
             out["roc_n_distinct"] = int(len(thr) - 1)
-    print(json.dumps(out))
+    return out
+
+
+def main():
+    if sys.argv[1] == "--batch":
+        with open(sys.argv[2]) as f:
+            requests = [line.rstrip("\n").split("\t") for line in f if line.strip()]
+        print(json.dumps([figures(*r) for r in requests]))
+    else:
+        print(json.dumps(figures(*sys.argv[1:8])))
 
 
 if __name__ == "__main__":
