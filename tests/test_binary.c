@@ -60,21 +60,23 @@ make_disc_mask (int width, int height)
   return mask;
 }
 
-static JsonObject *
-python_json (JsonParser *parser, const char *mode, ...)
+/* Runs ref_otsu_clean.py once on all the requests (tab-separated lines: a mode and its
+ * arguments; skimage is slow to import); the answers, one object per line, or NULL (and
+ * g_test_skip) when the reference cannot run here. */
+static JsonArray *
+run_requests (GPtrArray *lines, const char *tag, JsonParser *parser)
 {
-  /* at most 6 arguments after the mode */
-  const char *args[7] = { NULL };
-  va_list ap;
-  va_start (ap, mode);
-  for (int k = 0; k < 6; k++)
-    if ((args[k] = va_arg (ap, const char *)) == NULL)
-      break;
-  va_end (ap);
+  g_autofree char *name = g_strconcat (tag, "-requests.txt", NULL);
+  g_autofree char *path = rete_test_tmp_path (name);
+  GString *text = g_string_new (NULL);
+  for (guint k = 0; k < lines->len; k++)
+    g_string_append_printf (text, "%s\n", (const char *) g_ptr_array_index (lines, k));
+  g_assert_true (g_file_set_contents (path, text->str, text->len, NULL));
+  g_string_free (text, TRUE);
   GError *error = NULL;
   gboolean skipped = FALSE;
-  g_autofree char *out = rete_test_python ("ref_otsu_clean.py", &skipped, &error, mode, args[0],
-                                           args[1], args[2], args[3], args[4], args[5], NULL);
+  g_autofree char *out = rete_test_python ("ref_otsu_clean.py", &skipped, &error, "--batch",
+                                           path, NULL);
   if (skipped)
     {
       g_test_skip (error->message);
@@ -84,7 +86,16 @@ python_json (JsonParser *parser, const char *mode, ...)
   g_assert_no_error (error);
   g_assert_true (json_parser_load_from_data (parser, out, -1, &error));
   g_assert_no_error (error);
-  return json_node_get_object (json_parser_get_root (parser));
+  JsonArray *answers = json_node_get_array (json_parser_get_root (parser));
+  g_assert_cmpuint (json_array_get_length (answers), ==, lines->len);
+  return answers;
+}
+
+static char *
+tmp_name (const char *what, gsize index)
+{
+  g_autofree char *name = g_strdup_printf ("%s%" G_GSIZE_FORMAT ".npy", what, index);
+  return rete_test_tmp_path (name);
 }
 
 typedef struct {
@@ -104,28 +115,10 @@ static const OtsuCase otsu_cases[] = {
   { "/vessel/binary/otsu/matches-skimage/tiny", MAP_UNIFORM, 3, 2, FALSE },
 };
 
-static void
-test_otsu (gconstpointer data)
+static ReteImage *
+otsu_case_map (const OtsuCase *c)
 {
-  const OtsuCase *c = data;
-  g_autoptr (ReteImage) map = make_map (c->kind, c->width, c->height, 77 + c->kind * 13 + c->width);
-  g_autoptr (ReteImage) mask = c->with_mask ? make_disc_mask (c->width, c->height) : NULL;
-  GError *error = NULL;
-  double ours = rete_threshold_otsu (map, mask, &error);
-  g_assert_no_error (error);
-  g_autofree char *map_path = rete_test_tmp_path ("otsu-map.npy");
-  g_autofree char *mask_path = rete_test_tmp_path ("otsu-mask.npy");
-  g_assert_true (rete_test_write_image_npy (map_path, map, NULL));
-  if (mask != NULL)
-    g_assert_true (rete_test_write_image_npy (mask_path, mask, NULL));
-  g_autoptr (JsonParser) parser = json_parser_new ();
-  JsonObject *ref = python_json (parser, "otsu", map_path, mask != NULL ? mask_path : "-", NULL);
-  if (ref == NULL)
-    return;
-  double theirs = json_object_get_double_member (ref, "threshold");
-  g_test_message ("%dx%d: Otsu level ours %.9g, skimage %.9g, difference %.3g (tolerance 0)",
-                  c->width, c->height, ours, theirs, fabs (ours - theirs));
-  g_assert_cmpfloat (ours, ==, theirs);
+  return make_map (c->kind, c->width, c->height, 77 + c->kind * 13 + c->width);
 }
 
 typedef struct {
@@ -146,27 +139,98 @@ static const CleanCase clean_cases[] = {
   { "/vessel/binary/clean/checker-fails-on-wrong-connectivity", 200, 150, 0.30, 30, 10, 1 },
 };
 
+static ReteImage *
+clean_case_binary (const CleanCase *c)
+{
+  GRand *rand = g_rand_new_with_seed (5 + c->width);
+  ReteImage *binary = rete_image_new (c->width, c->height, 1, NULL);
+  for (gsize i = 0; i < rete_image_n_pixels (binary); i++)
+    binary->data[i] = g_rand_double (rand) < c->density;
+  g_rand_free (rand);
+  return binary;
+}
+
+/* The reference for every Otsu and clean-up case of the tables, run once. */
+static struct {
+  gboolean done;
+  JsonParser *parser;
+  JsonArray *answers; /* otsu cases, then clean cases */
+} tables;
+
+static JsonObject *
+table_answer (gsize index)
+{
+  if (!tables.done)
+    {
+      tables.done = TRUE;
+      GPtrArray *lines = g_ptr_array_new_with_free_func (g_free);
+      for (gsize i = 0; i < G_N_ELEMENTS (otsu_cases); i++)
+        {
+          const OtsuCase *c = &otsu_cases[i];
+          g_autoptr (ReteImage) map = otsu_case_map (c);
+          g_autofree char *map_path = tmp_name ("otsu-map", i);
+          g_autofree char *mask_path = tmp_name ("otsu-mask", i);
+          g_assert_true (rete_test_write_image_npy (map_path, map, NULL));
+          if (c->with_mask)
+            {
+              g_autoptr (ReteImage) mask = make_disc_mask (c->width, c->height);
+              g_assert_true (rete_test_write_image_npy (mask_path, mask, NULL));
+            }
+          g_ptr_array_add (lines, g_strjoin ("\t", "otsu", map_path,
+                                             c->with_mask ? mask_path : "-", NULL));
+        }
+      for (gsize i = 0; i < G_N_ELEMENTS (clean_cases); i++)
+        {
+          const CleanCase *c = &clean_cases[i];
+          g_autoptr (ReteImage) binary = clean_case_binary (c);
+          g_autofree char *in_path = tmp_name ("clean-in", i);
+          g_autofree char *out_path = tmp_name ("clean-out", i);
+          g_assert_true (rete_test_write_image_npy (in_path, binary, NULL));
+          g_ptr_array_add (lines, g_strdup_printf ("clean\t%s\t%" G_GSIZE_FORMAT "\t%"
+                                                   G_GSIZE_FORMAT "\t%s\t%d", in_path,
+                                                   c->min_component, c->max_hole, out_path,
+                                                   c->object_connectivity));
+        }
+      tables.parser = json_parser_new ();
+      tables.answers = run_requests (lines, "tables", tables.parser);
+      g_ptr_array_free (lines, TRUE);
+    }
+  if (tables.answers == NULL)
+    {
+      g_test_skip ("the Python reference (skimage) could not run here");
+      return NULL;
+    }
+  return json_array_get_object_element (tables.answers, index);
+}
+
+static void
+test_otsu (gconstpointer data)
+{
+  const OtsuCase *c = data;
+  gsize index = (gsize) (c - otsu_cases);
+  g_autoptr (ReteImage) map = otsu_case_map (c);
+  g_autoptr (ReteImage) mask = c->with_mask ? make_disc_mask (c->width, c->height) : NULL;
+  GError *error = NULL;
+  double ours = rete_threshold_otsu (map, mask, &error);
+  g_assert_no_error (error);
+  JsonObject *ref = table_answer (index);
+  if (ref == NULL)
+    return;
+  double theirs = json_object_get_double_member (ref, "threshold");
+  g_test_message ("%dx%d: Otsu level ours %.9g, skimage %.9g, difference %.3g (tolerance 0)",
+                  c->width, c->height, ours, theirs, fabs (ours - theirs));
+  g_assert_cmpfloat (ours, ==, theirs);
+}
+
 static void
 test_clean (gconstpointer data)
 {
   const CleanCase *c = data;
-  GRand *rand = g_rand_new_with_seed (5 + c->width);
-  g_autoptr (ReteImage) binary = rete_image_new (c->width, c->height, 1, NULL);
-  for (gsize i = 0; i < rete_image_n_pixels (binary); i++)
-    binary->data[i] = g_rand_double (rand) < c->density;
-  g_rand_free (rand);
-  g_autofree char *in_path = rete_test_tmp_path ("clean-in.npy");
-  g_autofree char *out_path = rete_test_tmp_path ("clean-out.npy");
-  g_assert_true (rete_test_write_image_npy (in_path, binary, NULL));
-  char min_component[32], max_hole[32], connectivity[8];
-  g_snprintf (min_component, sizeof min_component, "%" G_GSIZE_FORMAT, c->min_component);
-  g_snprintf (max_hole, sizeof max_hole, "%" G_GSIZE_FORMAT, c->max_hole);
-  g_snprintf (connectivity, sizeof connectivity, "%d", c->object_connectivity);
-  g_autoptr (JsonParser) parser = json_parser_new ();
-  JsonObject *ref = python_json (parser, "clean", in_path, min_component, max_hole, out_path,
-                                 connectivity, NULL);
-  if (ref == NULL)
+  gsize index = (gsize) (c - clean_cases);
+  if (table_answer (G_N_ELEMENTS (otsu_cases) + index) == NULL)
     return;
+  g_autoptr (ReteImage) binary = clean_case_binary (c);
+  g_autofree char *out_path = tmp_name ("clean-out", index);
   GError *error = NULL;
   g_autoptr (ReteImage) theirs = rete_test_read_image_npy (out_path, &error);
   g_assert_no_error (error);
@@ -191,32 +255,17 @@ test_fraction (void)
 {
   static const MapKind kinds[] = { MAP_BIMODAL, MAP_8BIT, MAP_SIGNED };
   static const double fractions[] = { 0.12, 0.5, 0.03 };
+  double levels[G_N_ELEMENTS (kinds)];
+  GPtrArray *lines = g_ptr_array_new_with_free_func (g_free);
+  g_autoptr (ReteImage) mask = make_disc_mask (211, 157);
+  g_autofree char *mask_path = tmp_name ("fraction-mask", 0);
+  g_assert_true (rete_test_write_image_npy (mask_path, mask, NULL));
   for (gsize k = 0; k < G_N_ELEMENTS (kinds); k++)
     {
       g_autoptr (ReteImage) map = make_map (kinds[k], 211, 157, 9 + k);
-      g_autoptr (ReteImage) mask = make_disc_mask (211, 157);
       GError *error = NULL;
-      double level = rete_threshold_for_fraction (map, mask, fractions[k], &error);
+      levels[k] = rete_threshold_for_fraction (map, mask, fractions[k], &error);
       g_assert_no_error (error);
-      g_autofree char *map_path = rete_test_tmp_path ("fraction-map.npy");
-      g_autofree char *mask_path = rete_test_tmp_path ("fraction-mask.npy");
-      g_assert_true (rete_test_write_image_npy (map_path, map, NULL));
-      g_assert_true (rete_test_write_image_npy (mask_path, mask, NULL));
-      char level_text[G_ASCII_DTOSTR_BUF_SIZE], fraction_text[G_ASCII_DTOSTR_BUF_SIZE];
-      g_ascii_dtostr (level_text, sizeof level_text, level);
-      g_ascii_dtostr (fraction_text, sizeof fraction_text, fractions[k]);
-      g_autoptr (JsonParser) parser = json_parser_new ();
-      JsonObject *ref = python_json (parser, "fraction", map_path, mask_path, level_text,
-                                     fraction_text, NULL);
-      if (ref == NULL)
-        return;
-      double at = json_object_get_double_member (ref, "at");
-      double below = json_object_get_null_member (ref, "below") ? INFINITY
-                     : json_object_get_double_member (ref, "below");
-      g_test_message ("fraction %.2f: level %.9g marks %.6f (numpy); the next lower value "
-                      "would mark %.6f", fractions[k], level, at, below);
-      g_assert_cmpfloat (at, <=, fractions[k]);
-      g_assert_cmpfloat (below, >, fractions[k]);
       /* the whole step marks that share too (no clean-up) */
       ReteBinaryParams params;
       rete_binary_params_init (&params);
@@ -226,7 +275,30 @@ test_fraction (void)
       double used = NAN;
       g_autoptr (ReteImage) binary = rete_binary_map (map, mask, &params, &used, &error);
       g_assert_no_error (error);
-      g_assert_cmpfloat (used, ==, level);
+      g_assert_cmpfloat (used, ==, levels[k]);
+      g_autofree char *map_path = tmp_name ("fraction-map", k);
+      g_assert_true (rete_test_write_image_npy (map_path, map, NULL));
+      char level_text[G_ASCII_DTOSTR_BUF_SIZE], fraction_text[G_ASCII_DTOSTR_BUF_SIZE];
+      g_ascii_dtostr (level_text, sizeof level_text, levels[k]);
+      g_ascii_dtostr (fraction_text, sizeof fraction_text, fractions[k]);
+      g_ptr_array_add (lines, g_strjoin ("\t", "fraction", map_path, mask_path, level_text,
+                                         fraction_text, NULL));
+    }
+  g_autoptr (JsonParser) parser = json_parser_new ();
+  JsonArray *answers = run_requests (lines, "fraction", parser);
+  g_ptr_array_free (lines, TRUE);
+  if (answers == NULL)
+    return;
+  for (gsize k = 0; k < G_N_ELEMENTS (kinds); k++)
+    {
+      JsonObject *ref = json_array_get_object_element (answers, k);
+      double at = json_object_get_double_member (ref, "at");
+      double below = json_object_get_null_member (ref, "below") ? INFINITY
+                     : json_object_get_double_member (ref, "below");
+      g_test_message ("fraction %.2f: level %.9g marks %.6f (numpy); the next lower value "
+                      "would mark %.6f", fractions[k], levels[k], at, below);
+      g_assert_cmpfloat (at, <=, fractions[k]);
+      g_assert_cmpfloat (below, >, fractions[k]);
     }
 }
 
@@ -346,26 +418,6 @@ test_hrf_clean_and_otsu (void)
   g_assert_no_error (error);
   g_autoptr (ReteImage) binary = rete_binarise (manual, NULL, 0.5, &error);
   g_assert_no_error (error);
-  g_autofree char *in_path = rete_test_tmp_path ("hrf-in.npy");
-  g_autofree char *out_path = rete_test_tmp_path ("hrf-out.npy");
-  g_assert_true (rete_test_write_image_npy (in_path, binary, NULL));
-  g_autoptr (JsonParser) parser = json_parser_new ();
-  JsonObject *ref = python_json (parser, "clean", in_path, "30", "10", out_path, NULL);
-  if (ref == NULL)
-    return;
-  g_autoptr (ReteImage) theirs = rete_test_read_image_npy (out_path, &error);
-  g_assert_no_error (error);
-  gint64 t0 = g_get_monotonic_time ();
-  g_assert_true (rete_binary_clean (binary, 30, 10, &error));
-  gint64 t1 = g_get_monotonic_time ();
-  gsize differ = 0, n = rete_image_n_pixels (binary);
-  for (gsize i = 0; i < n; i++)
-    differ += binary->data[i] != theirs->data[i];
-  g_test_message ("HRF 01_h %dx%d: clean-up (30, 10) in %.0f ms; %" G_GSIZE_FORMAT
-                  " pixels differ from skimage (tolerance 0)", binary->width, binary->height,
-                  (t1 - t0) / 1000.0, differ);
-  g_assert_cmpuint (differ, ==, 0);
-
   /* a soft map: mean over 5x5 (running sums along rows, then columns) */
   g_autoptr (ReteImage) soft = rete_image_new_like (manual, 1, NULL);
   int w = manual->width, h = manual->height;
@@ -386,15 +438,37 @@ test_hrf_clean_and_otsu (void)
           sum += rows[(gsize) CLAMP (y + d, 0, h - 1) * w + x];
         soft->data[(gsize) y * w + x] = (float) (sum / 25.0);
       }
-  g_autofree char *soft_path = rete_test_tmp_path ("hrf-soft.npy");
+  g_autofree char *in_path = tmp_name ("hrf-in", 0);
+  g_autofree char *out_path = tmp_name ("hrf-out", 0);
+  g_autofree char *soft_path = tmp_name ("hrf-soft", 0);
+  g_assert_true (rete_test_write_image_npy (in_path, binary, NULL));
   g_assert_true (rete_test_write_image_npy (soft_path, soft, NULL));
-  g_autoptr (JsonParser) parser2 = json_parser_new ();
-  JsonObject *otsu = python_json (parser2, "otsu", soft_path, "-", NULL);
-  if (otsu == NULL)
+  GPtrArray *lines = g_ptr_array_new_with_free_func (g_free);
+  g_ptr_array_add (lines, g_strjoin ("\t", "clean", in_path, "30", "10", out_path, NULL));
+  g_ptr_array_add (lines, g_strjoin ("\t", "otsu", soft_path, "-", NULL));
+  g_autoptr (JsonParser) parser = json_parser_new ();
+  JsonArray *answers = run_requests (lines, "hrf", parser);
+  g_ptr_array_free (lines, TRUE);
+  if (answers == NULL)
     return;
+
+  g_autoptr (ReteImage) theirs = rete_test_read_image_npy (out_path, &error);
+  g_assert_no_error (error);
+  gint64 t0 = g_get_monotonic_time ();
+  g_assert_true (rete_binary_clean (binary, 30, 10, &error));
+  gint64 t1 = g_get_monotonic_time ();
+  gsize differ = 0, n = rete_image_n_pixels (binary);
+  for (gsize i = 0; i < n; i++)
+    differ += binary->data[i] != theirs->data[i];
+  g_test_message ("HRF 01_h %dx%d: clean-up (30, 10) in %.0f ms; %" G_GSIZE_FORMAT
+                  " pixels differ from skimage (tolerance 0)", binary->width, binary->height,
+                  (t1 - t0) / 1000.0, differ);
+  g_assert_cmpuint (differ, ==, 0);
+
   double ours = rete_threshold_otsu (soft, NULL, &error);
   g_assert_no_error (error);
-  double want = json_object_get_double_member (otsu, "threshold");
+  double want = json_object_get_double_member (json_array_get_object_element (answers, 1),
+                                               "threshold");
   g_test_message ("HRF 01_h blurred: Otsu level ours %.9g, skimage %.9g, difference %.3g "
                   "(tolerance 0)", ours, want, fabs (ours - want));
   g_assert_cmpfloat (ours, ==, want);

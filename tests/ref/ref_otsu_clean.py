@@ -10,6 +10,9 @@ usage:
       writes remove_small_holes(remove_small_objects(b, MIN_COMPONENT, connectivity=2),
       MAX_HOLE, connectivity=1) as float32 0/1 (a 0 skips that step); OBJECT_CONNECTIVITY (default
       2) exists so that a test can ask for the wrong one and see the check fail
+  ref_otsu_clean.py --batch REQUESTS.txt
+      one request a line (a mode and its arguments, separated by tabs); prints a JSON list
+      of the answers (skimage is imported once)
 """
 import json
 import sys
@@ -28,30 +31,37 @@ def inside(map_path, mask_path):
     return v.reshape(-1)
 
 
-def main():
-    mode = sys.argv[1]
+def answer(argv):
+    mode = argv[0]
     if mode == "otsu":
-        v = inside(sys.argv[2], sys.argv[3])
-        print(json.dumps({"threshold": float(filters.threshold_otsu(v))}))
-    elif mode == "fraction":
-        v = inside(sys.argv[2], sys.argv[3]).astype(np.float64)
-        level = float(sys.argv[4])
+        v = inside(argv[1], argv[2])
+        return {"threshold": float(filters.threshold_otsu(v))}
+    if mode == "fraction":
+        v = inside(argv[1], argv[2]).astype(np.float64)
+        level = float(argv[3])
         lower = v[v < level]
-        out = {"at": float(np.mean(v >= level)),
-               "below": float(np.mean(v >= lower.max())) if lower.size else None}
-        print(json.dumps(out))
-    elif mode == "clean":
-        b = np.load(sys.argv[2]) >= 0.5
-        min_component, max_hole = int(sys.argv[3]), int(sys.argv[4])
-        connectivity = int(sys.argv[6]) if len(sys.argv) > 6 else 2
+        return {"at": float(np.mean(v >= level)),
+                "below": float(np.mean(v >= lower.max())) if lower.size else None}
+    if mode == "clean":
+        b = np.load(argv[1]) >= 0.5
+        min_component, max_hole = int(argv[2]), int(argv[3])
+        connectivity = int(argv[5]) if len(argv) > 5 else 2
         if min_component > 0:
             b = morphology.remove_small_objects(b, min_size=min_component, connectivity=connectivity)
         if max_hole > 0:
             b = morphology.remove_small_holes(b, area_threshold=max_hole, connectivity=1)
-        np.save(sys.argv[5], b.astype(np.float32))
-        print(json.dumps({"vessel": int(b.sum())}))
+        np.save(argv[4], b.astype(np.float32))
+        return {"vessel": int(b.sum())}
+    sys.exit("unknown mode " + mode)
+
+
+def main():
+    if sys.argv[1] == "--batch":
+        with open(sys.argv[2]) as f:
+            requests = [line.rstrip("\n").split("\t") for line in f if line.strip()]
+        print(json.dumps([answer(r) for r in requests]))
     else:
-        sys.exit("unknown mode " + mode)
+        print(json.dumps(answer(sys.argv[1:])))
 
 
 if __name__ == "__main__":
