@@ -457,7 +457,16 @@ rete_cmd_train (int argc, char **argv)
   GArray *training = NULL, *validation = NULL;
   char **meta = NULL;
   GPtrArray *metadata = NULL;
-  char *base = NULL, *checkpoint_default = NULL, *log_default = NULL, *joined = NULL, *line = NULL;
+  char *base = NULL, *checkpoint_default = NULL, *log_default = NULL, *line = NULL;
+  /* the command line as typed, for the model's provenance (before parsing consumes it) */
+  GString *typed = g_string_new ("rete train");
+  for (int i = 1; i < argc; i++)
+    {
+      char *quoted = strpbrk (argv[i], " \t'\"$") ? g_shell_quote (argv[i]) : g_strdup (argv[i]);
+      g_string_append_printf (typed, " %s", quoted);
+      g_free (quoted);
+    }
+  line = g_string_free (typed, FALSE);
   if (!rete_cli_parse (context, command, &argc, &argv))
     {
       status = RETE_EXIT_USAGE;
@@ -515,15 +524,6 @@ rete_cmd_train (int argc, char **argv)
   meta = rete_train_preprocessing_metadata (start ? start : prep);
   for (int i = 0; meta[i] != NULL; i++)
     g_ptr_array_add (metadata, g_strdup (meta[i]));
-  joined = g_strjoinv (" ", argv + 1);
-  line = g_strdup_printf ("rete train --annotations %s%s%s%s%s --size %s "
-                                           "--steps %d --batch %d --patch %d --seed %" G_GINT64_FORMAT " %s",
-                                           data.annotations, data.masks ? " --masks " : "",
-                                           data.masks ? data.masks : "",
-                                           validate ? " --validate " : "", validate ? validate : "",
-                                           size ? size : "standard", config.steps,
-                                           config.batch_size, config.patches.patch_size, seed,
-                                           joined);
   const char *pairs_meta[] = {
     "command", line, "validation_photographs", validate ? validate : "",
     "size", levels || filters || convs ? "custom" : (size ? size : "standard"),
@@ -616,6 +616,6 @@ out:
   g_free (data.annotations); g_free (data.masks); g_free (data.channel);
   g_free (size); g_free (output); g_free (checkpoint); g_free (log); g_free (validate);
   g_free (start_name); g_free (augment);
-  g_free (base); g_free (checkpoint_default); g_free (log_default); g_free (joined); g_free (line);
+  g_free (base); g_free (checkpoint_default); g_free (log_default); g_free (line);
   return status;
 }
