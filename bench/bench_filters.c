@@ -8,8 +8,12 @@
  *   RESULT matched ...                    rete_matched_raw, default sigma/L, 12 orientations
  *   RESULT matched-fdog-map ...           rete_vessel_matched with MF-FDOG
  *   RESULT line-map ...                   rete_vessel_line, defaults
- *   RESULT frangi-1-thread / matched-1-thread: the first two again on one thread (skimage and
- *   numpy run on one core; OpenCV uses both).
+ *   RESULT frangi-1-thread / matched-1-thread: frangi and matched again on one thread (skimage
+ *   and numpy run on one core; OpenCV uses both).
+ *   RESULT cpu-frangi / cpu-matched: the same one-thread runs in CPU time of the process
+ *   (CLOCK_PROCESS_CPUTIME_ID), paired with ref_filters.py's cpu-frangi-skimage and
+ *   cpu-matched-opencv (time.process_time, OpenCV on one thread): on a machine shared with
+ *   other jobs, CPU time compares the work done where wall time mostly measures the queue.
  * Each figure is the median of [runs] runs after one warm-up.
  *   build/bench/bench-filters [runs]     (default 5)
  */
@@ -17,6 +21,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
 #include "rete_filters.h"
 
 /* c given to both sides of the skimage comparison (bench/ref_filters.py: FRANGI_C) */
@@ -86,15 +91,24 @@ run_job (Job job, const ReteImage *grey, const ReteImage *fov, GError **error)
 }
 
 static double
-median_ms (Job job, const ReteImage *grey, const ReteImage *fov, int runs)
+now_ms (gboolean cpu)
+{
+  struct timespec t;
+  clock_gettime (cpu ? CLOCK_PROCESS_CPUTIME_ID : CLOCK_MONOTONIC, &t);
+  return t.tv_sec * 1e3 + t.tv_nsec / 1e6;
+}
+
+/* Median over runs of the wall time (cpu = FALSE) or of the process's CPU time. */
+static double
+median_ms (Job job, const ReteImage *grey, const ReteImage *fov, int runs, gboolean cpu)
 {
   double *ms = g_new (double, runs);
   for (int k = -1; k < runs; k++) /* k = -1: warm-up */
     {
       GError *error = NULL;
-      gint64 start = g_get_monotonic_time ();
+      double start = now_ms (cpu);
       ReteImage *out = run_job (job, grey, fov, &error);
-      gint64 stop = g_get_monotonic_time ();
+      double stop = now_ms (cpu);
       if (out == NULL)
         {
           fprintf (stderr, "bench_filters: %s\n", error->message);
@@ -102,7 +116,7 @@ median_ms (Job job, const ReteImage *grey, const ReteImage *fov, int runs)
         }
       rete_image_free (out);
       if (k >= 0)
-        ms[k] = (stop - start) / 1000.0;
+        ms[k] = stop - start;
     }
   qsort (ms, runs, sizeof (double), compare_doubles);
   double median = runs % 2 ? ms[runs / 2] : 0.5 * (ms[runs / 2 - 1] + ms[runs / 2]);
@@ -139,12 +153,15 @@ main (int argc, char **argv)
           fov->data[(gsize) y * w + x] = hypot (x - w / 2.0, y - h / 2.0) < 0.48 * MIN (w, h);
       for (gsize j = 0; j < G_N_ELEMENTS (jobs); j++)
         {
-          printf ("RESULT %s %dx%d %.2f\n", jobs[j].name, w, h, median_ms (jobs[j].job, grey, fov, runs));
+          printf ("RESULT %s %dx%d %.2f\n", jobs[j].name, w, h, median_ms (jobs[j].job, grey, fov, runs, FALSE));
           fflush (stdout);
         }
       rete_set_thread_count (1);
-      printf ("RESULT frangi-1-thread %dx%d %.2f\n", w, h, median_ms (FRANGI_SKIMAGE, grey, fov, runs));
-      printf ("RESULT matched-1-thread %dx%d %.2f\n", w, h, median_ms (MATCHED, grey, fov, runs));
+      printf ("RESULT frangi-1-thread %dx%d %.2f\n", w, h,
+              median_ms (FRANGI_SKIMAGE, grey, fov, runs, FALSE));
+      printf ("RESULT matched-1-thread %dx%d %.2f\n", w, h, median_ms (MATCHED, grey, fov, runs, FALSE));
+      printf ("RESULT cpu-frangi %dx%d %.2f\n", w, h, median_ms (FRANGI_SKIMAGE, grey, fov, runs, TRUE));
+      printf ("RESULT cpu-matched %dx%d %.2f\n", w, h, median_ms (MATCHED, grey, fov, runs, TRUE));
       fflush (stdout);
       rete_set_thread_count (0); /* back to the default */
       rete_image_free (grey);

@@ -8,7 +8,9 @@
                                         with the same 12 zero-mean, unit-energy matched kernels
                                         as rete_matched_kernel (built below by the same rule),
                                         then the maximum over orientations
-skimage runs on one core (numpy); OpenCV on both.
+  RESULT cpu-frangi-skimage / cpu-matched-opencv   the same in CPU time of the process
+                                        (time.process_time), OpenCV on one thread
+skimage runs on one core (numpy); OpenCV on both (cv2.setNumThreads(1) for the CPU-time line).
     /usr/bin/python3 bench/ref_filters.py [runs]      (default 5; median after one warm-up)
 """
 import math
@@ -55,13 +57,13 @@ def matched_kernel(sigma, length, n, k):
     return kern.astype(np.float32)
 
 
-def median_ms(fn, runs):
+def median_ms(fn, runs, clock=time.perf_counter):
     fn()  # warm-up
     times = []
     for _ in range(runs):
-        t = time.perf_counter()
+        t = clock()
         fn()
-        times.append((time.perf_counter() - t) * 1000.0)
+        times.append((clock() - t) * 1000.0)
     return float(np.median(times))
 
 
@@ -81,6 +83,15 @@ def main():
                 out = r if out is None else np.maximum(out, r)
             return out
         print("RESULT matched-opencv %dx%d %.2f" % (w, h, median_ms(matched, runs)), flush=True)
+        ms = median_ms(lambda: frangi(grey, sigmas=SIGMAS, beta=0.5, gamma=FRANGI_C,
+                                      black_ridges=True, mode="reflect"), max(1, runs // 2),
+                       time.process_time)
+        print("RESULT cpu-frangi-skimage %dx%d %.2f" % (w, h, ms), flush=True)
+        threads = cv2.getNumThreads()
+        cv2.setNumThreads(1)
+        print("RESULT cpu-matched-opencv %dx%d %.2f"
+              % (w, h, median_ms(matched, runs, time.process_time)), flush=True)
+        cv2.setNumThreads(threads)
 
 
 if __name__ == "__main__":
