@@ -138,6 +138,8 @@ static void
 mode_changed (GtkWidget *combo, AgreementDialog *d)
 {
   gimp_int_combo_box_get_active (GIMP_INT_COMBO_BOX (combo), &d->config->threshold_mode);
+  if (!d->threshold_adj)
+    return;
   gtk_widget_set_sensitive (GIMP_SCALE_ENTRY_SCALE (d->threshold_adj),
                             d->config->threshold_mode == AGREEMENT_THRESHOLD_FIXED);
   threshold_changed (d);
@@ -293,6 +295,12 @@ guess_other (gint32 map)
 }
 
 static void
+layers_changed (GtkWidget *combo, AgreementDialog *d)
+{
+  recompute (d);
+}
+
+static void
 toggled_fov (GtkWidget *button, AgreementDialog *d)
 {
   d->use_fov = gtk_toggle_button_get_active (GTK_TOGGLE_BUTTON (button));
@@ -330,9 +338,17 @@ agreement_dialog (gint32 image, gint32 drawable, AgreementInputs *inputs,
   d.config = config;
   d.result = result;
   d.updating = TRUE;
-  inputs->map = drawable;
-  inputs->reference = guess_other (drawable);
+  if (!(inputs->reference > 0 && gimp_item_is_valid (inputs->reference)
+        && same_size (0, inputs->reference, GINT_TO_POINTER (drawable))))
+    inputs->reference = guess_other (drawable);
   fov_guess = inputs->reference;
+  if (inputs->fov > 0 && gimp_item_is_valid (inputs->fov)
+      && same_size (0, inputs->fov, GINT_TO_POINTER (drawable)))
+    {
+      fov_guess = inputs->fov;
+      d.use_fov = TRUE;
+    }
+  inputs->map = drawable;
 
   d.dialog = plugin_dialog_new (_("Agreement with Reference"), AGREEMENT_ROLE, AGREEMENT_PROC,
                                 _("Compares a vessel map (a method's scores or a grader's "
@@ -344,17 +360,18 @@ agreement_dialog (gint32 image, gint32 drawable, AgreementInputs *inputs,
 
   table = plugin_table_new (4);
   gtk_box_pack_start (GTK_BOX (vbox), table, FALSE, FALSE, 0);
-  d.map_combo = drawable_combo (drawable, drawable, G_CALLBACK (recompute), &d);
+  d.map_combo = drawable_combo (drawable, drawable, G_CALLBACK (layers_changed), &d);
   gimp_table_attach_aligned (GTK_TABLE (table), 0, 0, _("Vessel _map:"), 0.0, 0.5,
                              d.map_combo, 2, FALSE);
-  d.reference_combo = drawable_combo (drawable, inputs->reference, G_CALLBACK (recompute), &d);
+  d.reference_combo = drawable_combo (drawable, inputs->reference, G_CALLBACK (layers_changed), &d);
   gimp_table_attach_aligned (GTK_TABLE (table), 0, 1, _("_Reference:"), 0.0, 0.5,
                              d.reference_combo, 2, FALSE);
   button = gtk_check_button_new_with_mnemonic (_("Inside the _field of view:"));
+  gtk_toggle_button_set_active (GTK_TOGGLE_BUTTON (button), d.use_fov);
   gtk_widget_show (button);
   gtk_table_attach (GTK_TABLE (table), button, 0, 1, 2, 3, GTK_FILL, GTK_FILL, 0, 0);
   g_signal_connect (button, "toggled", G_CALLBACK (toggled_fov), &d);
-  d.fov_combo = drawable_combo (drawable, fov_guess, G_CALLBACK (recompute), &d);
+  d.fov_combo = drawable_combo (drawable, fov_guess, G_CALLBACK (layers_changed), &d);
   gtk_table_attach (GTK_TABLE (table), d.fov_combo, 1, 3, 2, 3, GTK_FILL | GTK_EXPAND, GTK_FILL, 0, 0);
 
   combo = gimp_int_combo_box_new (_("Set with the slider"), AGREEMENT_THRESHOLD_FIXED,

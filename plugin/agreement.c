@@ -448,6 +448,12 @@ agreement_run (const gchar *name, gint nparams, const GimpParam *param,
     {
     case GIMP_RUN_INTERACTIVE:
       gimp_get_data (PLUG_IN_PROC, &config);
+      /* Layers given by a script are offered first. */
+      if (nparams == N_ARGS)
+        {
+          inputs.reference = param[3].data.d_drawable;
+          inputs.fov = param[4].data.d_drawable;
+        }
       if (!agreement_dialog (image, inputs.map, &inputs, &config, &result))
         {
           values[0].type = GIMP_PDB_STATUS;

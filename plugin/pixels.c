@@ -112,16 +112,9 @@ plugin_read_map (gint32 drawable, GError **error)
 
   if (!plugin_check_drawable (drawable, _("map"), error))
     return NULL;
-  if (!gimp_drawable_is_rgb (drawable))
-    {
-      /* Premultiplied: a transparent pixel counts as black (no vessel). */
-      pixels = read_floats (drawable, "Y'aA float", 2, &width, &height);
-      if (!pixels)
-        goto no_memory;
-      g_autoptr (ReteImage) ya = rete_image_from_interleaved (pixels, width, height, 2, error);
-      return ya ? rete_image_extract_channel (ya, 0, error) : NULL;
-    }
-
+  /* Grey drawables too are read as premultiplied RGBA (R = G = B): a transparent pixel counts
+   * as black (no vessel). One format for every drawable; babl 0.1.98 here crashed on a path
+   * to "Y'aA float" after other conversions in the same process. */
   pixels = read_floats (drawable, "R'aG'aB'aA float", 4, &width, &height);
   if (!pixels)
     goto no_memory;
@@ -244,4 +237,24 @@ plugin_add_colour_layer (gint32 image, gint32 like_drawable, gint32 parent, gint
   plugin_write_grey (layer_mask, mask);
   gimp_layer_remove_mask (layer, GIMP_MASK_APPLY);
   return layer;
+}
+
+gint32
+plugin_rgb_image_for (gint32 drawable, gint32 *new_image, GError **error)
+{
+  gint32 image = gimp_item_get_image (drawable);
+
+  *new_image = -1;
+  if (gimp_image_base_type (image) == GIMP_RGB)
+    return image;
+  image = gimp_image_new (gimp_drawable_width (drawable), gimp_drawable_height (drawable),
+                          GIMP_RGB);
+  if (image < 0)
+    {
+      g_set_error (error, PLUGIN_ERROR, 0, _("GIMP could not make an image: %s"),
+                   gimp_get_pdb_error ());
+      return -1;
+    }
+  *new_image = image;
+  return image;
 }

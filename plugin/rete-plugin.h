@@ -87,6 +87,9 @@ gint32 plugin_add_grey_layer (gint32 image, gint32 like_drawable, gint32 parent,
 gint32 plugin_add_colour_layer (gint32 image, gint32 like_drawable, gint32 parent, gint position,
                                 const char *name, const GimpRGB *colour, const ReteImage *mask,
                                 double opacity);
+/* An RGB image for coloured layers made from `drawable`: its own image when RGB, else a new
+ * RGB image of the drawable's size (then *new_image is set to it; else -1). */
+gint32 plugin_rgb_image_for (gint32 drawable, gint32 *new_image, GError **error);
 /* TRUE when `drawable` can be read as a photograph or map (not indexed); else a message. */
 gboolean plugin_check_drawable (gint32 drawable, const char *role, GError **error);
 

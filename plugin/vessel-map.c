@@ -20,7 +20,12 @@ vessel_map_config_init (VesselMapConfig *config)
 
   rete_vessel_params_init (&p);
   memset (config, 0, sizeof *config);
-  config->method = RETE_METHOD_LEARNED;
+  /* The learned method first when its standard model is installed, else Frangi. */
+  {
+    g_autofree char *standard = plugin_model_resolve ("standard", NULL);
+
+    config->method = standard ? RETE_METHOD_LEARNED : RETE_METHOD_FRANGI;
+  }
   g_strlcpy (config->model, "standard", sizeof config->model);
   config->channel = p.channel;
   config->use_clahe = p.use_clahe;
@@ -310,12 +315,12 @@ vessel_map_query (void)
     { GIMP_PDB_STRING,   "model",            "Learned method: a model name as listed by plug-in-rete-models (\"standard\", ...) or a model file path" },
     { GIMP_PDB_INT32,    "channel",          "Classical methods: channel read { GREEN (0), LUMINANCE (1), RED (2), BLUE (3) }" },
     { GIMP_PDB_INT32,    "use-clahe",        "Classical methods: CLAHE inside the field of view first { FALSE (0), TRUE (1) }" },
-    { GIMP_PDB_FLOAT,    "frangi-sigma-min", "Frangi: smallest scale, pixels (0 < s <= 32, default 1)" },
-    { GIMP_PDB_FLOAT,    "frangi-sigma-max", "Frangi: largest scale, pixels (>= frangi-sigma-min, default 4)" },
-    { GIMP_PDB_FLOAT,    "frangi-beta",      "Frangi: blob-versus-line sensitivity beta (0 < b <= 10, default 0.5)" },
-    { GIMP_PDB_FLOAT,    "matched-sigma",    "Matched filter: vessel cross-section scale, pixels (0 < s <= 16, default 1.5)" },
-    { GIMP_PDB_FLOAT,    "matched-length",   "Matched filter: length of the vessel piece matched, pixels (1 <= L <= 64, default 9)" },
-    { GIMP_PDB_INT32,    "line-window",      "Line detector: window W, odd, pixels (3 <= W <= 61, default 15)" },
+    { GIMP_PDB_FLOAT,    "frangi-sigma-min", "Frangi: smallest scale, pixels (0 < s <= 32; 0 = default)" },
+    { GIMP_PDB_FLOAT,    "frangi-sigma-max", "Frangi: largest scale, pixels (>= frangi-sigma-min; 0 = default)" },
+    { GIMP_PDB_FLOAT,    "frangi-beta",      "Frangi: blob-versus-line sensitivity beta (0 < b <= 10; 0 = default)" },
+    { GIMP_PDB_FLOAT,    "matched-sigma",    "Matched filter: vessel cross-section scale, pixels (0 < s <= 16; 0 = default)" },
+    { GIMP_PDB_FLOAT,    "matched-length",   "Matched filter: length of the vessel piece matched, pixels (1 <= L <= 64; 0 = default)" },
+    { GIMP_PDB_INT32,    "line-window",      "Line detector: window W, odd, pixels (3 <= W <= 61; 0 = default)" },
     { GIMP_PDB_INT32,    "threshold-method", "Binary map threshold { OTSU (0), FIXED (1), FRACTION (2) }" },
     { GIMP_PDB_FLOAT,    "threshold",        "FIXED: level in [0, 1]; FRACTION: vessel fraction of the field of view in (0, 1); OTSU: ignored" },
     { GIMP_PDB_INT32,    "min-component",    "Vessel pieces smaller than this many pixels are removed (0 keeps all, default 30)" },
@@ -354,6 +359,27 @@ vessel_map_query (void)
   gimp_plugin_menu_register (PLUG_IN_PROC, PLUG_IN_MENU);
 }
 
+/* Script-Fu convenience: 0 for a scale, a length or the window means librete's default. */
+static void
+zero_means_default (VesselMapConfig *c)
+{
+  VesselMapConfig d;
+
+  vessel_map_config_init (&d);
+  if (c->frangi_sigma_min == 0.0)
+    c->frangi_sigma_min = d.frangi_sigma_min;
+  if (c->frangi_sigma_max == 0.0)
+    c->frangi_sigma_max = MAX (d.frangi_sigma_max, c->frangi_sigma_min);
+  if (c->frangi_beta == 0.0)
+    c->frangi_beta = d.frangi_beta;
+  if (c->matched_sigma == 0.0)
+    c->matched_sigma = d.matched_sigma;
+  if (c->matched_length == 0.0)
+    c->matched_length = d.matched_length;
+  if (c->line_window == 0)
+    c->line_window = d.line_window;
+}
+
 static void
 config_from_args (VesselMapConfig *c, const GimpParam *param)
 {
@@ -374,6 +400,7 @@ config_from_args (VesselMapConfig *c, const GimpParam *param)
   c->add_fov_layer = param[17].data.d_int32 != 0;
   c->overlay_colour = param[18].data.d_color;
   c->overlay_opacity = param[19].data.d_float;
+  zero_means_default (c);
 }
 
 void

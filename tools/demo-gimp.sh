@@ -52,7 +52,7 @@ cat > "$tmp/demo.scm" <<EOF
 (let* ((image (car (gimp-file-load RUN-NONINTERACTIVE "$photo" "$photo")))
        (photo (car (gimp-image-get-active-drawable image)))
        (out (plug-in-rete-vessel-map RUN-NONINTERACTIVE image photo $method "standard" 0 1
-              1.0 4.0 0.5 1.5 9.0 15 0 0.5 30 1 1 '(0 217 255) 70.0)))
+              0 0 0 0 0 0 0 0.5 30 1 1 '(0 217 255) 70.0)))
   (gimp-item-set-name photo "Photograph")
   (file-png-save2 RUN-NONINTERACTIVE image (list-ref out 1) "$out/$name-vessel-probability.png" "" 0 9 0 0 0 0 0 0 0)
   (file-png-save2 RUN-NONINTERACTIVE image (list-ref out 2) "$out/$name-vessels-binary.png" "" 0 9 0 0 0 0 0 0 0)

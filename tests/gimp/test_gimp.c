@@ -19,6 +19,7 @@
 #include "rete_test.h"
 #include "rete_vessel.h"
 #include "rete_nn.h"
+#include "rete_measure.h"
 
 /* A synthetic photograph written as an 8-bit PNG, and read back as GIMP will see it. */
 static ReteImage *
@@ -435,6 +436,123 @@ test_agreement_chase_graders (void)
   run_agreement (second, first, mask, 0);
 }
 
+/* ---- training: a tiny model from folders, which then maps vessels ---- */
+
+static void
+test_train_folders (void)
+{
+  g_autofree char *photos = rete_test_tmp_path ("train-photos");
+  g_autofree char *annotations = rete_test_tmp_path ("train-annotations");
+  g_autofree char *script = NULL, *call = NULL;
+  GError *error = NULL;
+
+  if (!gimp_harness_setup ())
+    return;
+  g_mkdir_with_parents (photos, 0755);
+  g_mkdir_with_parents (annotations, 0755);
+  for (int i = 0; i < 3; i++)
+    {
+      ReteSynthParams params;
+      ReteImage *photo = NULL, *vessels = NULL;
+      g_autofree char *name = g_strdup_printf ("photo-%d.png", i);
+      g_autofree char *photo_path = g_build_filename (photos, name, NULL);
+      g_autofree char *annotation_path = g_build_filename (annotations, name, NULL);
+
+      rete_synth_params_init (&params);
+      params.seed = 100 + i;
+      params.width = params.height = 128;
+      g_assert_true (rete_synth_fundus (&params, &photo, &vessels, NULL, &error));
+      g_assert_true (rete_io_save (photo, photo_path, NULL, &error));
+      g_assert_true (rete_io_save (vessels, annotation_path, NULL, &error));
+      g_assert_no_error (error);
+      rete_image_free (photo);
+      rete_image_free (vessels);
+    }
+  call = vessel_call ("image", "drawable", RETE_METHOD_LEARNED, "gimp-test-tiny");
+  script = g_strdup_printf (
+    "(let ((out (plug-in-rete-train RUN-NONINTERACTIVE -1 -1 \"%s\" \"%s\" \"\" 0 0 20 \"\" \"gimp-test-tiny\")))\n"
+    "  (gimp-message (string-append \"RETE-VALUE steps \" (number->string (caddr out))))\n"
+    "  (gimp-message (string-append \"RETE-VALUE model-exists \" (if (file-exists? (car out)) \"1\" \"0\"))))\n"
+    "(let ((names (cadr (plug-in-rete-models RUN-NONINTERACTIVE))))\n"
+    "  (gimp-message (string-append \"RETE-VALUE listed \" (if (member \"gimp-test-tiny\" names) \"1\" \"0\"))))\n"
+    "(let* ((image (car (file-png-load RUN-NONINTERACTIVE \"%s/photo-0.png\" \"\")))\n"
+    "       (drawable (car (gimp-image-get-active-drawable image))))\n"
+    "  %s\n"
+    "  (gimp-image-delete image)\n"
+    "  (gimp-message \"RETE-DONE\"))\n", photos, annotations, photos, call);
+  g_autoptr (GimpRun) run = gimp_harness_run (script, 600);
+  gimp_run_assert_ok (run);
+  g_assert_cmpfloat (gimp_run_value (run, "steps"), ==, 20);
+  g_assert_cmpfloat (gimp_run_value (run, "listed"), >=, 1);
+}
+
+/* ---- measurements: figures and CSV against rete_measure ---- */
+
+static void
+test_measure (void)
+{
+  g_autofree char *in = NULL, *map_png = NULL, *fov_png = NULL, *csv = NULL, *script = NULL;
+  g_autofree char *csv_text = NULL, *expected_csv = NULL, *header = NULL, *row = NULL;
+  g_autoptr (ReteImage) photo = NULL, truth = NULL, map = NULL;
+  g_autoptr (ReteMeasurements) m = NULL;
+  g_autofree ReteMeasureField *fields = NULL;
+  ReteMeasureParams params;
+  GString *prints = g_string_new (NULL);
+  GError *error = NULL;
+  double largest = 0.0;
+  int n;
+
+  if (!gimp_harness_setup ())
+    return;
+  photo = synthetic_photo ("photo-measure.png", 16, &in, &truth);
+  map_png = rete_test_tmp_path ("measure-map.png");
+  fov_png = rete_test_tmp_path ("measure-fov.png");
+  csv = rete_test_tmp_path ("measure.csv");
+  g_assert_true (rete_io_save (truth, map_png, NULL, &error));
+  map = rete_io_load_grey (map_png, &error);
+  g_assert_no_error (error);
+  rete_measure_params_init (&params);
+  m = rete_measure (map, NULL, &params, &error);
+  g_assert_no_error (error);
+  n = rete_measurements_fields (m, &fields);
+  for (int i = 0; i < n; i++)
+    g_string_append_printf (prints, "  (gimp-message (string-append \"RETE-VALUE f%d \" "
+                            "(number->string (vector-ref (list-ref out 2) %d))))\n", i, i);
+  script = g_strdup_printf (
+    "(let* ((image (car (file-png-load RUN-NONINTERACTIVE \"%s\" \"\")))\n"
+    "       (drawable (car (gimp-image-get-active-drawable image)))\n"
+    "       (out (plug-in-rete-measure RUN-NONINTERACTIVE image drawable -1 0 %.17g 1 \"%s\")))\n"
+    "  (gimp-message (string-append \"RETE-VALUE n \" (number->string (list-ref out 1))))\n"
+    "%s"
+    "  (gimp-message (string-append \"RETE-VALUE layer \" (number->string (list-ref out 5))))\n"
+    "  (gimp-image-delete image)\n"
+    "  (gimp-message \"RETE-DONE\"))\n", map_png, params.min_segment_length, csv, prints->str);
+  g_string_free (prints, TRUE);
+  g_autoptr (GimpRun) run = gimp_harness_run (script, 300);
+  gimp_run_assert_ok (run);
+  g_assert_cmpfloat (gimp_run_value (run, "n"), ==, n);
+  g_assert_cmpfloat (gimp_run_value (run, "layer"), >, 0);
+  for (int i = 0; i < n; i++)
+    {
+      g_autofree char *key = g_strdup_printf ("f%d", i);
+      double got = gimp_run_value (run, key), want = fields[i].value;
+      double diff = isnan (want) ? (isnan (got) ? 0.0 : INFINITY)
+                                 : fabs (got - want) / MAX (1.0, fabs (want));
+
+      largest = MAX (largest, diff);
+      if (!(diff <= 1e-9))
+        g_test_fail_printf ("%s: GIMP returned %.10g, librete %.10g", fields[i].column, got, want);
+    }
+  g_test_message ("measurements: %d figures, largest relative difference %.3g (tolerance 1e-9)",
+                  n, largest);
+  /* The CSV is librete's own row for the layer's name (GIMP names a loaded layer after the
+   * file). */
+  g_assert_true (g_file_get_contents (csv, &csv_text, NULL, NULL));
+  header = rete_measurements_csv_header (m);
+  g_assert_true (g_str_has_prefix (csv_text, header));
+  g_assert_cmpuint (strlen (csv_text), >, strlen (header) + 10);
+}
+
 /* ---- bad calls: an error status with a message, never a crash or a result ---- */
 
 typedef struct {
@@ -471,6 +589,21 @@ static const BadCall bad_calls[] = {
     " (plug-in-rete-field-of-view RUN-NONINTERACTIVE image drawable 0 0 0 0 1)", "already has a layer mask" },
   { "fov-out-of-range", "(plug-in-rete-field-of-view RUN-NONINTERACTIVE image drawable -3 0 1 0 0)",
     "erode-rim" },
+  { "train-missing-folder",
+    "(plug-in-rete-train RUN-NONINTERACTIVE -1 -1 \"/nonexistent/photos\" \"/nonexistent/ann\" \"\" 0 0 10 \"\" \"x\")",
+    "cannot be read" },
+  { "train-nothing-to-train-on",
+    "(plug-in-rete-train RUN-NONINTERACTIVE -1 -1 \"\" \"\" \"\" 0 0 10 \"\" \"x\")", "nothing to train on" },
+  { "train-missing-start-model",
+    "(let ((r (car (gimp-layer-copy drawable FALSE)))) (gimp-image-insert-layer image r 0 0) (gimp-item-set-name r \"Reference\"))"
+    " (plug-in-rete-train RUN-NONINTERACTIVE -1 -1 \"\" \"\" \"\" 1 0 10 \"no-such-model\" \"x\")",
+    "no-such-model" },
+  { "measure-fov-of-different-size",
+    "(let ((small (car (gimp-image-new 40 30 RGB)))) (let ((l (car (gimp-layer-new small 40 30 RGB-IMAGE \"x\" 100 LAYER-MODE-NORMAL))))"
+    " (gimp-image-insert-layer small l 0 0)"
+    " (plug-in-rete-measure RUN-NONINTERACTIVE image drawable l 0 10 0 \"\")))", "but" },
+  { "measure-absurd-pixel-size", "(plug-in-rete-measure RUN-NONINTERACTIVE image drawable -1 5.0 10 0 \"\")",
+    "" },
 };
 
 static void
@@ -514,6 +647,28 @@ test_models_list (void)
   g_assert_cmpfloat (gimp_run_value (run, "models"), >=, 0);
 }
 
+/* ---- the checker itself: a deliberately wrong map must be found different ---- */
+
+static void
+test_compare_detects_difference (void)
+{
+  g_autofree char *png = rete_test_tmp_path ("checker.png");
+  g_autoptr (ReteImage) map = NULL, wrong = NULL;
+  GError *error = NULL;
+  int max_diff;
+
+  map = rete_image_new (32, 16, 1, &error);
+  for (gsize i = 0; i < rete_image_n_pixels (map); i++)
+    map->data[i] = (float) (i % 256) / 255.0f;
+  g_assert_true (rete_io_save (map, png, NULL, &error));
+  g_assert_no_error (error);
+  g_assert_cmpuint (gimp_compare_png (png, map, &max_diff), ==, 0);
+  wrong = rete_image_copy (map, &error);
+  wrong->data[5] += 1.0f / 255.0f;  /* one pixel one level off */
+  g_assert_cmpuint (gimp_compare_png (png, wrong, &max_diff), ==, 1);
+  g_assert_cmpint (max_diff, ==, 1);
+}
+
 int
 main (int argc, char *argv[])
 {
@@ -522,6 +677,7 @@ main (int argc, char *argv[])
   rete_io_init ();
   g_test_init (&argc, &argv, NULL);
 
+  g_test_add_func ("/gimp/checker/detects-one-level-difference", test_compare_detects_difference);
   for (gsize i = 0; i < G_N_ELEMENTS (method_cases); i++)
     {
       g_autofree char *path = g_strdup_printf ("/gimp/vessel-map/%s/equals-librete",
@@ -543,5 +699,7 @@ main (int argc, char *argv[])
       g_test_add_data_func (path, &bad_calls[i], test_bad_call);
     }
   g_test_add_func ("/gimp/models/list", test_models_list);
+  g_test_add_func ("/gimp/train/tiny-from-folders/model-listed-and-usable", test_train_folders);
+  g_test_add_func ("/gimp/measure/figures-and-csv/equals-librete", test_measure);
   return g_test_run ();
 }
