@@ -161,7 +161,7 @@ rete_cmd_vessels (int argc, char **argv)
       "Model for the learned method: a shipped name or a .safetensors file (default standard)",
       "NAME|FILE" },
     { "threshold", 't', 0, G_OPTION_ARG_STRING, &threshold,
-      D (keep, "otsu, fixed:LEVEL or fraction:F (default %s)", rete_threshold_method_name (d.binary.method)), "RULE" },
+      D (keep, "otsu, fixed:LEVEL or fraction:F (default otsu for learned, fraction:%g for the classical filters)", RETE_CLASSICAL_VESSEL_FRACTION), "RULE" },
     { "min-component", 0, 0, G_OPTION_ARG_INT, &min_component,
       D (keep, "Remove vessel pieces smaller than this many pixels (default %" G_GSIZE_FORMAT "; 0 keeps all)", d.binary.min_component), "PX" },
     { "fill-holes", 0, 0, G_OPTION_ARG_INT, &fill_holes,
@@ -231,9 +231,15 @@ rete_cmd_vessels (int argc, char **argv)
     }
   ReteVesselParams *p = &run.params;
   rete_vessel_params_init (p);
-  p->method = RETE_METHOD_LEARNED;
-  if ((method && !rete_method_from_name (method, &p->method, &error))
-      || (threshold && !rete_cli_parse_threshold (threshold, &p->binary, &error))
+  ReteMethod chosen = RETE_METHOD_LEARNED;
+  if (method && !rete_method_from_name (method, &chosen, &error))
+    {
+      rete_cli_usage_error (command, "%s", error->message);
+      goto out;
+    }
+  /* the method's own default threshold rule, unless --threshold says otherwise */
+  rete_vessel_params_set_method (p, chosen);
+  if ((threshold && !rete_cli_parse_threshold (threshold, &p->binary, &error))
       || (channel && !rete_channel_from_name (channel, &p->channel, &error))
       || (scales && !rete_cli_parse_range (scales, "--scales", &p->frangi.sigma_min,
                                            &p->frangi.sigma_max, &p->frangi.sigma_step, &error)))
@@ -344,7 +350,7 @@ rete_cmd_vessels (int argc, char **argv)
   settings = rete_vessel_params_describe (p);
   if (!quiet)
     fprintf (stderr, "%s: %s, threshold %s, %u photograph%s\n", command, settings,
-             threshold ? threshold : "otsu", run.inputs->len, run.inputs->len == 1 ? "" : "s");
+             threshold ? threshold : (p->binary.method == RETE_THRESHOLD_OTSU ? "otsu" : "fraction:" G_STRINGIFY (RETE_CLASSICAL_VESSEL_FRACTION)), run.inputs->len, run.inputs->len == 1 ? "" : "s");
   ReteCliProgress *progress = rete_cli_progress_new ("vessel maps", run.inputs->len, quiet);
   rete_cli_run_batch (run.inputs->len, names, jobs, vessels_one, &run, progress);
   int failed = rete_cli_progress_finish (progress);

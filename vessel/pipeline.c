@@ -62,6 +62,20 @@ rete_vessel_params_init (ReteVesselParams *params)
   rete_matched_params_init (&params->matched);
   rete_line_params_init (&params->line);
   rete_binary_params_init (&params->binary);
+  rete_vessel_params_set_method (params, RETE_METHOD_FRANGI);
+}
+
+void
+rete_vessel_params_set_method (ReteVesselParams *params, ReteMethod method)
+{
+  params->method = method;
+  if (method == RETE_METHOD_LEARNED)
+    params->binary.method = RETE_THRESHOLD_OTSU;
+  else
+    {
+      params->binary.method = RETE_THRESHOLD_FRACTION;
+      params->binary.fraction = RETE_CLASSICAL_VESSEL_FRACTION;
+    }
 }
 
 char *
