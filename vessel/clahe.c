@@ -159,6 +159,12 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
                    "not enough memory for CLAHE of a %d×%d image", grey->width, grey->height);
       goto fail;
     }
+  if (fov != NULL && (t->inside = g_try_new (guint8, rete_image_n_pixels (grey))) == NULL)
+    {
+      g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
+                   "not enough memory for CLAHE of a %d×%d image", grey->width, grey->height);
+      goto fail;
+    }
   rete_parallel_for (t->height, rete_clahe_range_rows, &c);
   if (c.any_not_finite)
     {
@@ -252,12 +258,14 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
   g_free (mirror_y);
   g_free (lut);
   g_free (t->bins);
+  g_free (t->inside);
   g_mutex_clear (&c.lock);
   return result;
 
 fail:
   rete_image_free (result);
   g_free (t->bins);
+  g_free (t->inside);
   g_mutex_clear (&c.lock);
   return NULL;
 }

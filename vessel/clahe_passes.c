@@ -17,6 +17,19 @@
  * value of each pixel, rint (v × 65535) as skimage's img_as_uint on float32 (the
  * conversion rounds to nearest, ties to even, as np.rint), clamped to [0, 1] first since
  * outside the FOV anything goes. */
+#ifdef __SSE2__
+/* Four bytes of the FOV byte mask (0/1) as a lane mask of four floats. */
+static inline __m128
+mask4 (const guint8 *m)
+{
+  int bytes;
+  memcpy (&bytes, m, 4);
+  __m128i zero = _mm_setzero_si128 ();
+  __m128i wide = _mm_unpacklo_epi16 (_mm_unpacklo_epi8 (_mm_cvtsi32_si128 (bytes), zero), zero);
+  return _mm_castsi128_ps (_mm_cmpgt_epi32 (wide, zero));
+}
+#endif
+
 void
 rete_clahe_range_rows (int first, int last, gpointer data)
 {
@@ -29,6 +42,7 @@ rete_clahe_range_rows (int first, int last, gpointer data)
       const float *g = t->grey + (gsize) y * t->width;
       const float *f = t->fov ? t->fov + (gsize) y * t->width : NULL;
       guint16 *u = t->bins + (gsize) y * t->width;
+      guint8 *inside = t->inside ? t->inside + (gsize) y * t->width : NULL;
       int x = 0;
 #ifdef __SSE2__
       __m128 lo4 = _mm_set1_ps (lo), hi4 = _mm_set1_ps (hi), bad4 = _mm_setzero_ps ();
@@ -50,6 +64,10 @@ rete_clahe_range_rows (int first, int last, gpointer data)
               bad4 = _mm_or_ps (bad4, _mm_cmpneq_ps (_mm_sub_ps (m, m), zero));
               __m128 in = _mm_cmpgt_ps (m, half);
               in4 = _mm_or_ps (in4, in);
+              __m128i in_i = _mm_packs_epi32 (_mm_castps_si128 (in), _mm_castps_si128 (in));
+              in_i = _mm_and_si128 (_mm_packs_epi16 (in_i, in_i), _mm_set1_epi8 (1));
+              int bytes = _mm_cvtsi128_si32 (in_i);
+              memcpy (inside + x, &bytes, 4);
               lo4 = _mm_min_ps (lo4, _mm_or_ps (_mm_and_ps (in, v), _mm_andnot_ps (in, big)));
               hi4 = _mm_max_ps (hi4, _mm_or_ps (_mm_and_ps (in, v), _mm_andnot_ps (in, small)));
             }
@@ -74,6 +92,8 @@ rete_clahe_range_rows (int first, int last, gpointer data)
         {
           float v = g[x];
           gboolean in = f == NULL || f[x] > 0.5f;
+          if (inside != NULL)
+            inside[x] = (guint8) in;
           u[x] = (guint16) lrintf (v > 0.0f ? (v < 1.0f ? v : 1.0f) * 65535.0f : 0.0f);
           any_in |= in;
           any_bad |= !(v - v == 0.0f) || (f != NULL && !(f[x] - f[x] == 0.0f));
@@ -92,21 +112,21 @@ rete_clahe_range_rows (int first, int last, gpointer data)
   g_mutex_unlock (&c->lock);
 }
 
-/* Smallest and largest of v[0..n) where f > 0.5 (everywhere when f is NULL), folded into
- * *lo and *hi. */
+/* Smallest and largest of v[0..n) where the byte mask f is 1 (everywhere when f is NULL),
+ * folded into *lo and *hi. */
 static void
-row_range (const float *v, const float *f, int n, float *lo, float *hi)
+row_range (const float *v, const guint8 *f, int n, float *lo, float *hi)
 {
   int x = 0;
   float l = *lo, h = *hi;
 #ifdef __SSE2__
-  __m128 lo4 = _mm_set1_ps (l), hi4 = _mm_set1_ps (h), half = _mm_set1_ps (0.5f);
+  __m128 lo4 = _mm_set1_ps (l), hi4 = _mm_set1_ps (h);
   for (; x + 4 <= n; x += 4)
     {
       __m128 a = _mm_loadu_ps (v + x);
       if (f != NULL)
         {
-          __m128 in = _mm_cmpgt_ps (_mm_loadu_ps (f + x), half);
+          __m128 in = mask4 (f + x);
           lo4 = _mm_min_ps (lo4, _mm_or_ps (_mm_and_ps (in, a), _mm_andnot_ps (in, lo4)));
           hi4 = _mm_max_ps (hi4, _mm_or_ps (_mm_and_ps (in, a), _mm_andnot_ps (in, hi4)));
         }
@@ -126,7 +146,7 @@ row_range (const float *v, const float *f, int n, float *lo, float *hi)
     }
 #endif
   for (; x < n; x++)
-    if (f == NULL || f[x] > 0.5f)
+    if (f == NULL || f[x])
       {
         l = MIN (l, v[x]);
         h = MAX (h, v[x]);
@@ -190,7 +210,7 @@ rete_clahe_interpolate_rows (int first, int last, gpointer data)
               out[x] = l + w[x] * (r - l);
             }
         }
-      row_range (out, t->fov ? t->fov + row : NULL, t->width, &lo, &hi);
+      row_range (out, t->inside ? t->inside + row : NULL, t->width, &lo, &hi);
     }
   g_mutex_lock (&c->lock);
   c->v_min = MIN (c->v_min, lo);
@@ -204,7 +224,7 @@ void
 rete_clahe_stretch_rows (int first, int last, gpointer data)
 {
   ReteClahe *c = data;
-  const float *fov = c->tiles.fov;
+  const guint8 *fov = c->tiles.inside;
   float lo = c->v_min, range = c->v_max - c->v_min;
   float scale = range > 0 ? 1.0f / range : 0.0f, offset = range > 0 ? 0.0f : 1.0f;
   gsize i0 = (gsize) first * c->tiles.width, i1 = (gsize) last * c->tiles.width;
@@ -212,16 +232,15 @@ rete_clahe_stretch_rows (int first, int last, gpointer data)
   gsize i = i0;
 #ifdef __SSE2__
   __m128 lo4 = _mm_set1_ps (lo), scale4 = _mm_set1_ps (scale), offset4 = _mm_set1_ps (offset);
-  __m128 half = _mm_set1_ps (0.5f);
   for (; i + 4 <= i1; i += 4)
     {
       __m128 o = _mm_add_ps (_mm_mul_ps (_mm_sub_ps (_mm_loadu_ps (out + i), lo4), scale4),
                              offset4);
       if (fov != NULL)
-        o = _mm_and_ps (o, _mm_cmpgt_ps (_mm_loadu_ps (fov + i), half));
+        o = _mm_and_ps (o, mask4 (fov + i));
       _mm_storeu_ps (out + i, o);
     }
 #endif
   for (; i < i1; i++)
-    out[i] = fov == NULL || fov[i] > 0.5f ? (out[i] - lo) * scale + offset : 0.0f;
+    out[i] = fov == NULL || fov[i] ? (out[i] - lo) * scale + offset : 0.0f;
 }

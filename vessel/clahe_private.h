@@ -12,6 +12,7 @@ G_BEGIN_DECLS
 typedef struct {
   const float *grey;      /* (height, width) values in [0, 1] */
   const float *fov;       /* (height, width) 0/1, or NULL */
+  guint8 *inside;         /* (height, width) 1 where fov > 0.5 (made by pass 1), or NULL */
   int width, height;
   int kw, kh;             /* tile (contextual region) size, pixels */
   int nx, ny;             /* tiles across and down: ceil(width / kw), ceil(height / kh) */

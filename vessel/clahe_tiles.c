@@ -115,7 +115,7 @@ tile_rows (int first, int last, gpointer data)
             bin_row (b, c->width, c->lut);
           else
             bin_row_again (c->grey + row, b, c->width, c->lut);
-          const float *f = c->fov ? c->fov + row : NULL;
+          const guint8 *f = c->inside ? c->inside + row : NULL;
           for (int tx = 0; tx < c->nx; tx++)
             {
               guint32 *h = row_hist + (gsize) tx * c->n_bins;
@@ -143,8 +143,7 @@ tile_rows (int first, int last, gpointer data)
                   int x = x0;
                   for (; x + 4 <= x1; x += 4)
                     {
-                      int i0 = f[x] > 0.5f, i1 = f[x + 1] > 0.5f, i2 = f[x + 2] > 0.5f,
-                          i3 = f[x + 3] > 0.5f;
+                      int i0 = f[x], i1 = f[x + 1], i2 = f[x + 2], i3 = f[x + 3];
                       h[b[x]] += i0;
                       h1[b[x + 1]] += i1;
                       h2[b[x + 2]] += i2;
@@ -153,7 +152,7 @@ tile_rows (int first, int last, gpointer data)
                     }
                   for (; x < x1; x++)
                     {
-                      int in = f[x] > 0.5f;
+                      int in = f[x];
                       h[b[x]] += in;
                       n_in += in;
                     }
@@ -162,7 +161,7 @@ tile_rows (int first, int last, gpointer data)
                 for (int p = x0; p < x1; p++)
                   {
                     int x = c->mirror_x[p];
-                    if (f == NULL || f[x] > 0.5f)
+                    if (f == NULL || f[x])
                       {
                         h[b[x]]++;
                         n_in++;
