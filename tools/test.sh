@@ -3,6 +3,8 @@
 # every test (unit, reference, data, gimp suites) and ends with the line
 # "N passed, N failed, N skipped" counted from the real run (each TAP test case counts).
 set -uo pipefail
+# Messages name sizes as 999×960: a UTF-8 locale keeps GLib from printing '?' for '×'.
+export LC_ALL=C.UTF-8
 here=$(cd "$(dirname "$0")/.." && pwd)
 bash "$here/tools/deps.sh" test || exit 1
 bash "$here/tools/build.sh" || { echo "0 passed, 1 failed"; exit 1; }
