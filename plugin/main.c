@@ -80,6 +80,8 @@ static void
 query (void)
 {
   gimp_plugin_domain_register (GETTEXT_PACKAGE, plugin_locale_dir ());
+  /* Our own submenu of Filters, translated in our text domain. */
+  gimp_plugin_menu_branch_register ("<Image>/Filters", N_("_Retina"));
   for (gsize i = 0; i < G_N_ELEMENTS (procedures); i++)
     procedures[i].query ();
 }

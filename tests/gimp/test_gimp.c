@@ -110,7 +110,9 @@ vessel_call (const char *image, const char *drawable, ReteMethod method, const c
                           image, drawable, (int) method, model, (int) p.channel, p.use_clahe,
                           p.frangi.sigma_min, p.frangi.sigma_max, p.frangi.beta,
                           p.matched.sigma, p.matched.length, p.line.window,
-                          (int) p.binary.method, p.binary.level, (int) p.binary.min_component);
+                          (int) p.binary.method,
+                          p.binary.method == RETE_THRESHOLD_FRACTION ? p.binary.fraction : p.binary.level,
+                          (int) p.binary.min_component);
 }
 
 static void
