@@ -14,6 +14,9 @@
  */
 #include <math.h>
 #include <string.h>
+#include <stdio.h>
+#include <sys/resource.h>
+#include <unistd.h>
 #include <sys/wait.h>
 #include <glib/gstdio.h>
 
@@ -793,6 +796,40 @@ test_odd_input (void)
   g_assert_nonnull (strstr (o->notes, "outside the field of view"));
 }
 
+/* A map too large for the memory at hand fails with RETE_ERROR_NO_MEMORY instead of aborting:
+ * in a child process whose address space is capped 150 MB above what it holds once a 64-megapixel
+ * map (256 MB of floats) is loaded, so that the 256 MB distance transform cannot be had. */
+static void
+test_huge_map (void)
+{
+  if (g_test_subprocess ())
+    {
+      ReteImage *map = rete_image_new (8000, 8000, 1, NULL);
+      g_assert_nonnull (map);
+      draw_band (map, 10, 10, 200, 10, 5);
+      long pages = 0, size = 0;
+      FILE *statm = fopen ("/proc/self/statm", "r");
+      g_assert_nonnull (statm);
+      g_assert_cmpint (fscanf (statm, "%ld", &size), ==, 1);
+      fclose (statm);
+      pages = size;
+      struct rlimit limit;
+      limit.rlim_cur = limit.rlim_max = (rlim_t) pages * sysconf (_SC_PAGESIZE) + (150u << 20);
+      g_assert_cmpint (setrlimit (RLIMIT_AS, &limit), ==, 0);
+      GError *error = NULL;
+      ReteMeasurements *m = rete_measure (map, NULL, NULL, &error);
+      g_assert_null (m);
+      g_assert_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY);
+      g_printerr ("%s\n", error->message);
+      g_error_free (error);
+      rete_image_free (map);
+      return;
+    }
+  g_test_trap_subprocess (NULL, 120 * G_USEC_PER_SEC, G_TEST_SUBPROCESS_DEFAULT);
+  g_test_trap_assert_passed ();
+  g_test_trap_assert_stderr ("*not enough memory*");
+}
+
 /* ---- the `rete measure` command ---- */
 
 static int
@@ -911,6 +948,7 @@ main (int argc, char **argv)
       g_test_add_data_func (path, &bad_cases[i], test_bad_input);
     }
   g_test_add_func ("/measure/odd-input/measurable", test_odd_input);
+  g_test_add_func ("/measure/bad-input/too-large-for-memory", test_huge_map);
   g_test_add_func ("/measure/command/folder-with-a-broken-file", test_command);
   return g_test_run ();
 }
