@@ -274,7 +274,8 @@ rete_measure (const ReteImage *binary, const ReteImage *fov, const ReteMeasurePa
     {
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
                    "not enough memory for the distance transform of a %d×%d map (%"
-                   G_GSIZE_FORMAT " MB)", w, h, (n * sizeof (float)) >> 20);
+                   G_GSIZE_FORMAT " MB): free memory or give a smaller map", w, h,
+                   (n * sizeof (float)) >> 20);
       return NULL;
     }
   rete_distance_framed (vessels, distance);

@@ -232,7 +232,8 @@ rete_thin_zhang_suen (ReteByteMap *map, ReteThinning variant, ReteProgressFunc p
       g_free (woken);
       g_free (merged);
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
-                   "not enough memory to thin a %d×%d map (%" G_GSIZE_FORMAT " vessel pixels)",
+                   "not enough memory to thin a %d×%d map (%" G_GSIZE_FORMAT " vessel pixels): "
+                   "free memory or give a smaller map",
                    map->width, map->height, n);
       return FALSE;
     }
@@ -363,7 +364,8 @@ rete_byte_map_new (int width, int height, GError **error)
   if (pixels == NULL)
     {
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
-                   "not enough memory for a %d×%d working map (%" G_GSIZE_FORMAT " MB)",
+                   "not enough memory for a %d×%d working map (%" G_GSIZE_FORMAT " MB): free "
+                   "memory or give a smaller map",
                    width, height, size >> 20);
       return NULL;
     }
