@@ -206,7 +206,7 @@ gimp_run_assert_ok (const GimpRun *run)
 }
 
 gsize
-gimp_compare_png (const char *png, const ReteImage *map, int *max_diff)
+gimp_compare_png (const char *png, const ReteImage *map, int *max_diff, gsize *ties)
 {
   GError *error = NULL;
   g_autoptr (ReteImage) saved = rete_io_load_grey (png, &error);
@@ -216,12 +216,21 @@ gimp_compare_png (const char *png, const ReteImage *map, int *max_diff)
   g_assert_cmpint (saved->width, ==, map->width);
   g_assert_cmpint (saved->height, ==, map->height);
   *max_diff = 0;
+  *ties = 0;
   for (gsize i = 0; i < rete_image_n_pixels (map); i++)
     {
-      int expected = (int) floor (CLAMP (map->data[i], 0.0f, 1.0f) * 255.0 + 0.5);
+      double level = CLAMP (map->data[i], 0.0f, 1.0f) * 255.0;
+      int expected = (int) floor (level + 0.5);
       int got = (int) floor (saved->data[i] * 255.0 + 0.5);
       int diff = abs (expected - got);
 
+      /* A value within 0.001 level of a half level may be rounded either way by babl's
+       * float-to-8-bit conversion: one level off there is a tie, not a difference. */
+      if (diff == 1 && fabs (level - floor (level) - 0.5) < 1e-3)
+        {
+          (*ties)++;
+          continue;
+        }
       if (diff)
         differing++;
       *max_diff = MAX (*max_diff, diff);

@@ -35,10 +35,11 @@ double gimp_run_value (const GimpRun *run, const char *name);
  * when it did not. */
 void gimp_run_assert_ok (const GimpRun *run);
 
-/* Levels (0..255) of an 8-bit PNG written by GIMP against a float map quantised as babl
- * does (round half up of v*255, clamped): returns the number of differing pixels, and the
- * largest difference in levels in *max_diff. */
-gsize gimp_compare_png (const char *png, const ReteImage *map, int *max_diff);
+/* Levels (0..255) of an 8-bit PNG written by GIMP against a float map quantised to 8 bits
+ * (round half up of v*255, clamped): returns the number of differing pixels, the largest
+ * difference in levels in *max_diff, and in *ties the pixels one level off whose value lies
+ * within 0.001 level of a half level (rounded either way by babl; not counted as differing). */
+gsize gimp_compare_png (const char *png, const ReteImage *map, int *max_diff, gsize *ties);
 
 /* Script-Fu string literal of a path (quotes escaped). Newly allocated. */
 char *gimp_scheme_string (const char *text);
