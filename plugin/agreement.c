@@ -246,8 +246,9 @@ legend_line (gint32 image, gint32 group, const char *text, const GimpRGB *colour
 
   if (layer < 0)
     return -1;
+  if (!gimp_image_insert_layer (image, layer, group, 0))
+    return -1;
   gimp_text_layer_set_color (layer, colour);
-  gimp_image_insert_layer (image, layer, group, 0);
   gimp_layer_set_offsets (layer, (int) size, y);
   return layer;
 }
