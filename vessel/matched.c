@@ -102,42 +102,48 @@ correlate_row (const Taps *t, const float *p, int width, gboolean antisymmetric,
     }
 }
 
+/* Width of the column strips a row is taken in: the kernel's rows over a strip stay in the
+ * first-level cache while all orientations pass over it. */
+#define STRIP 256
+
 static void
 matched_rows (int first, int last, gpointer data)
 {
   Matched *m = data;
   int w = m->width;
-  float *acc = g_new (float, 2 * w), *dacc = acc + w;
+  float acc[STRIP], dacc[STRIP];
   for (int y = first; y < last; y++)
-    {
-      const float *p = m->padded + (gsize) (y + m->half) * m->stride + m->half;
-      float *h = m->h_out + (gsize) y * w, *d = m->d_out ? m->d_out + (gsize) y * w : NULL;
-      for (int k = 0; k < m->n_orientations; k++)
-        {
-          correlate_row (&m->mf[k], p, w, FALSE, acc);
-          if (d != NULL)
-            correlate_row (&m->fdog[k], p, w, TRUE, dacc);
-          if (k == 0)
-            {
-              memcpy (h, acc, w * sizeof (float));
-              if (d != NULL)
-                for (int x = 0; x < w; x++)
-                  d[x] = fabsf (dacc[x]);
-              continue;
-            }
-          if (d == NULL)
-            for (int x = 0; x < w; x++)
-              h[x] = MAX (h[x], acc[x]);
-          else
-            for (int x = 0; x < w; x++)
-              if (acc[x] > h[x])
-                {
-                  h[x] = acc[x];
-                  d[x] = fabsf (dacc[x]);
-                }
-        }
-    }
-  g_free (acc);
+    for (int x0 = 0; x0 < w; x0 += STRIP)
+      {
+        int n = MIN (STRIP, w - x0);
+        const float *p = m->padded + (gsize) (y + m->half) * m->stride + m->half + x0;
+        float *h = m->h_out + (gsize) y * w + x0;
+        float *d = m->d_out ? m->d_out + (gsize) y * w + x0 : NULL;
+        for (int k = 0; k < m->n_orientations; k++)
+          {
+            correlate_row (&m->mf[k], p, n, FALSE, acc);
+            if (d != NULL)
+              correlate_row (&m->fdog[k], p, n, TRUE, dacc);
+            if (k == 0)
+              {
+                memcpy (h, acc, n * sizeof (float));
+                if (d != NULL)
+                  for (int x = 0; x < n; x++)
+                    d[x] = fabsf (dacc[x]);
+                continue;
+              }
+            if (d == NULL)
+              for (int x = 0; x < n; x++)
+                h[x] = MAX (h[x], acc[x]);
+            else
+              for (int x = 0; x < n; x++)
+                if (acc[x] > h[x])
+                  {
+                    h[x] = acc[x];
+                    d[x] = fabsf (dacc[x]);
+                  }
+          }
+      }
 }
 
 /* H (and D when d_out != NULL) of grey. */
