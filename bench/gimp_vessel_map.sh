@@ -47,26 +47,35 @@ call="(let* ((i $load) (d (car (gimp-image-get-active-drawable i))))
   (plug-in-rete-vessel-map RUN-NONINTERACTIVE i d $code \"standard\" 0 1 0 0 0 0 0 0 $threshold 30 1 1 '(0 217 255) 70.0)
   (gimp-image-delete i) (gimp-message \"RETE-DONE\"))"
 
-seconds () { local s e; s=$(date +%s.%N); "$@"; e=$(date +%s.%N); echo "$e - $s" | bc; }
+# One timed run: wall seconds and CPU seconds (user + system, children included: GIMP,
+# Script-Fu and the plug-in) into $wall and $cpu.
+timed () {
+  /usr/bin/time -f "%e %U %S" -o "$tmp/time" "$@" >"$tmp/log" 2>&1
+  wall=$(awk '{ print $1 }' "$tmp/time"); cpu=$(awk '{ print $2 + $3 }' "$tmp/time")
+}
+gimp_timed () { timed timeout 900 gimp-console-2.10 -i -d -f -b "$1" -b '(gimp-quit 0)'; }
 median () { printf '%s\n' "$@" | sort -g | sed -n 2p; }
-a=(); b=(); c=()
+if [ "$method" = learned ]; then cli=(vessels --method learned --model standard); else cli=(vessels --method frangi); fi
+cli+=(--threshold "$rule" --output-dir "$tmp/cli")
+a=(); b=(); c=(); d=(); ca=(); cb=(); cc=()
 for _ in 1 2 3; do
-  a+=("$(seconds gimp_run "$alone")")
-  b+=("$(seconds gimp_run "$call")")
+  gimp_timed "$alone"; a+=("$wall"); ca+=("$cpu"); ta=$wall
+  gimp_timed "$call"; b+=("$wall"); cb+=("$cpu")
   grep -q "RETE-DONE" "$tmp/log" || { cat "$tmp/log" >&2; echo "the vessel map call failed" >&2; exit 1; }
-  if [ "$method" = learned ]; then cli=(vessels --method learned --model standard); else cli=(vessels --method frangi); fi
-  cli+=(--threshold "$rule")
-  c+=("$(seconds "$build/cli/rete" "${cli[@]}" --output-dir "$tmp/cli" "$photo" >/dev/null 2>&1)")
+  d+=("$(echo "$wall - $ta" | bc)")
+  timed "$build/cli/rete" "${cli[@]}" "$photo"; c+=("$wall"); cc+=("$cpu")
 done
 size=$(identify -format '%wx%h' "$photo" 2>/dev/null || echo "?")
-ma=$(median "${a[@]}"); mb=$(median "${b[@]}"); mc=$(median "${c[@]}")
-call_ms=$(echo "($mb - $ma) * 1000" | bc)
-cli_ms=$(echo "$mc * 1000" | bc)
+call_ms=$(echo "$(median "${d[@]}") * 1000" | bc)
+cli_ms=$(echo "$(median "${c[@]}") * 1000" | bc)
+cpu_call=$(echo "$(median "${cb[@]}") - $(median "${ca[@]}")" | bc)
 echo "RESULT gimp-vessel-map-$method $size $call_ms"
 echo "RESULT gimp-vessel-map-$method-cli $size $cli_ms"
-printf '%-34s %10s %10s\n' "measure ($method, $(basename "$photo"), $size)" "ms" "runs (s)"
-printf '%-34s %10.0f %10s\n' "GIMP start + load + quit" "$(echo "$ma*1000" | bc)" "${a[*]}"
-printf '%-34s %10.0f %10s\n' "... + vessel map call" "$(echo "$mb*1000" | bc)" "${b[*]}"
-printf '%-34s %10.0f\n' "call to layers (difference)" "$call_ms"
-printf '%-34s %10.0f %10s\n' "rete vessels (same job, no GIMP)" "$cli_ms" "${c[*]}"
-printf '%-34s %10.2f\n' "ratio rete vessels / GIMP call" "$(echo "$cli_ms / $call_ms" | bc -l)"
+echo "measure ($method, $(basename "$photo"), $size; median of 3; load average $(cut -d' ' -f1 /proc/loadavg))"
+printf '  %-44s %8.0f ms   runs %s\n' "GIMP start + load + quit" "$(echo "$(median "${a[@]}")*1000" | bc)" "${a[*]}"
+printf '  %-44s %8.0f ms   runs %s\n' "... + vessel map call" "$(echo "$(median "${b[@]}")*1000" | bc)" "${b[*]}"
+printf '  %-44s %8.0f ms   pairs %s\n' "call to layers (paired difference)" "$call_ms" "${d[*]}"
+printf '  %-44s %8.2f s\n' "CPU of the call (user+system, difference)" "$cpu_call"
+printf '  %-44s %8.0f ms   runs %s\n' "rete vessels (same job, no GIMP)" "$cli_ms" "${c[*]}"
+printf '  %-44s %8.2f s\n' "CPU of rete vessels (user+system)" "$(median "${cc[@]}")"
+printf '  %-44s %8.2f\n' "ratio rete vessels / GIMP call (wall)" "$(echo "$cli_ms / $call_ms" | bc -l)"
