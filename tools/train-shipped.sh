@@ -20,11 +20,11 @@ sizes=("$@")
 [ ${#sizes[@]} -gt 0 ] || sizes=(tiny standard)
 for size in "${sizes[@]}"; do
   case $size in
-    tiny)     args=(--size tiny --steps 6000 --batch 32 --learning-rate 5e-3 --validate-every 250 --seed 1) ;;
-    standard) args=(--size standard --steps 3000 --batch 16 --learning-rate 2e-3 --validate-every 250 --seed 1) ;;
+    tiny)     args=(--size tiny --steps 6000 --validate-every 500 --batch 32 --learning-rate 1e-2 --dice-weight 0 --seed 1) ;;
+    standard) args=(--size standard --steps 4000 --validate-every 500 --batch 16 --learning-rate 2e-3 --dice-weight 0 --seed 1) ;;
     *) echo "unknown size $size (tiny or standard)" >&2; exit 2 ;;
   esac
   mkdir -p "$out"
-  /usr/bin/time -v "$rete" train "${common[@]}" "${args[@]}" --print-every 50 \
+  "$rete" train "${common[@]}" "${args[@]}" --print-every 100 \
     --output "$out/$size.safetensors" "$data/images"
 done
