@@ -9,31 +9,88 @@
 #include <stdio.h>
 #include <string.h>
 
-/* "tiny", "standard", or LEVELSxFILTERSxCONVS such as 3x8x2 */
+/* One cell of the grid: SIZE[-linear][@N], SIZE being tiny, standard or
+ * LEVELSxFILTERSxCONVS such as 3x8x2; "-linear" turns the activation off (identity instead
+ * of ReLU); "@N" trains on N of the training photographs, another N for each repetition. */
+typedef struct {
+  ReteUnetConfig arch;
+  int photographs; /* 0 = all */
+} SweepCell;
+
 static gboolean
-parse_size (const char *text, ReteUnetConfig *config, GError **error)
+parse_cell (const char *text, SweepCell *cell, GError **error)
 {
-  if (g_ascii_strcasecmp (text, "tiny") == 0 || g_ascii_strcasecmp (text, "standard") == 0)
-    return rete_train_size_preset (text, config, error);
-  rete_unet_config_init (config);
-  int l, f, k;
-  char tail;
-  if (sscanf (text, "%dx%dx%d%c", &l, &f, &k, &tail) != 3)
+  g_auto (GStrv) at = g_strsplit (text, "@", 2);
+  cell->photographs = 0;
+  if (at[1] != NULL)
     {
-      g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_USAGE, "--sizes: '%s' is not tiny, "
-                   "standard or LEVELSxFILTERSxCONVS (e.g. 3x8x2)", text);
-      return FALSE;
+      char *end = NULL;
+      gint64 n = g_ascii_strtoll (at[1], &end, 10);
+      if (end == at[1] || *end != '\0' || n < 1 || n > 10000)
+        {
+          g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_USAGE, "--sizes: '%s': after @ give "
+                       "the number of training photographs, 1 or more (e.g. 3x16x2@4)", text);
+          return FALSE;
+        }
+      cell->photographs = (int) n;
     }
-  config->levels = l;
-  config->base_filters = f;
-  config->convs_per_block = k;
+  char *size = at[0];
+  gboolean linear = g_str_has_suffix (size, "-linear");
+  if (linear)
+    size[strlen (size) - strlen ("-linear")] = '\0';
+  ReteUnetConfig *config = &cell->arch;
+  if (g_ascii_strcasecmp (size, "tiny") == 0 || g_ascii_strcasecmp (size, "standard") == 0)
+    {
+      if (!rete_train_size_preset (size, config, error))
+        return FALSE;
+    }
+  else
+    {
+      rete_unet_config_init (config);
+      int l, f, k;
+      char tail;
+      if (sscanf (size, "%dx%dx%d%c", &l, &f, &k, &tail) != 3)
+        {
+          g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_USAGE, "--sizes: '%s' is not tiny, "
+                       "standard or LEVELSxFILTERSxCONVS (e.g. 3x8x2), optionally followed by "
+                       "-linear and @PHOTOGRAPHS", text);
+          return FALSE;
+        }
+      config->levels = l;
+      config->base_filters = f;
+      config->convs_per_block = k;
+    }
+  config->activation = !linear;
   return rete_unet_config_check (config, error);
+}
+
+/* `n` of the training samples for repetition `seed`: a seeded Fisher–Yates shuffle of all of
+ * them, cut to n (all, in order, when n is 0 or not smaller). */
+static GArray *
+choose_photographs (GArray *training, int n, guint64 seed)
+{
+  GArray *chosen = g_array_copy (training);
+  if (n <= 0 || (guint) n >= chosen->len)
+    return chosen;
+  guint64 rng = rete_rng_derive (seed, 0x5EED, n);
+  ReteTrainSample *s = (ReteTrainSample *) chosen->data;
+  for (guint i = chosen->len - 1; i > 0; i--)
+    {
+      guint j = (guint) (rete_rng_uniform (&rng) * (i + 1));
+      ReteTrainSample t = s[i];
+      s[i] = s[MIN (j, i)];
+      s[MIN (j, i)] = t;
+    }
+  g_array_set_size (chosen, n);
+  return chosen;
 }
 
 static const char description[] =
   "For each size, trains --repeats networks (seeds 1..N) with the settings of `rete train`\n"
   "and reports weights, validation AUC mean ± sd and inference seconds per photograph. Sizes\n"
-  "are tiny, standard or LEVELSxFILTERSxCONVS. Keep runs short (--steps): a grid multiplies.\n"
+  "are tiny, standard or LEVELSxFILTERSxCONVS; add -linear to turn the activation off and\n"
+  "@N to train on N of the training photographs (other ones for each repetition). Keep runs\n"
+  "short (--steps): a grid multiplies.\n"
   "\n"
   "Example:\n"
   "  rete sweep --annotations chase_db1/manual1 --masks chase_db1/mask \\\n"
@@ -68,6 +125,9 @@ rete_cmd_sweep (int argc, char **argv)
       "Adam's base rate (default 1e-3)", "RATE" },
     { "validate-every", 0, 0, G_OPTION_ARG_INT, &base.validate_every,
       "Steps between validations (default 200)", "N" },
+    { "dice-weight", 0, 0, G_OPTION_ARG_DOUBLE, &base.dice_weight,
+      "Weight of the soft Dice term beside binary cross-entropy (default 0.5; 0 = BCE only)",
+      "W" },
     { "csv", 0, 0, G_OPTION_ARG_FILENAME, &csv, "Also write one row per training here", "FILE" },
     { "quiet", 'q', 0, G_OPTION_ARG_NONE, &quiet, "Only the table", NULL },
     { NULL },
@@ -81,7 +141,8 @@ rete_cmd_sweep (int argc, char **argv)
   ReteModel *prep = NULL;
   GPtrArray *pairs = NULL;
   GArray *training = NULL, *validation = NULL;
-  GString *rows = g_string_new ("size,levels,filters,convs,weights,seed,validation_auc,"
+  GString *rows = g_string_new ("size,levels,filters,convs,activation,photographs,weights,seed,"
+                                "validation_auc,"
                                 "best_step,restarts,train_seconds,infer_seconds_per_image\n");
   char **names = NULL, **meta = NULL;
   if (!rete_cli_parse (context, command, &argc, &argv))
@@ -99,8 +160,8 @@ rete_cmd_sweep (int argc, char **argv)
   names = g_strsplit (sizes ? sizes : "tiny,3x4x2,3x8x2,standard", ",", -1);
   for (int i = 0; names[i] != NULL; i++)
     {
-      ReteUnetConfig c;
-      if (!parse_size (g_strstrip (names[i]), &c, &error))
+      SweepCell c;
+      if (!parse_cell (g_strstrip (names[i]), &c, &error))
         {
           status = rete_cli_usage_error (command, "%s", error->message);
           goto out;
@@ -117,14 +178,18 @@ rete_cmd_sweep (int argc, char **argv)
       goto out;
     }
   meta = rete_train_preprocessing_metadata (prep);
-  printf ("| size | levels × filters × convs | weights | validation AUC (mean ± sd, n=%d) | "
-          "inference s/photograph |\n|---|---|---|---|---|\n", repeats);
+  printf ("| size | levels × filters × convs | activation | training photographs | weights | "
+          "validation AUC (mean ± sd, n=%d) | inference s/photograph |\n"
+          "|---|---|---|---|---|---|---|\n", repeats);
   for (int i = 0; names[i] != NULL; i++)
     {
       double sum = 0, sum2 = 0, infer = 0;
       gsize weights = 0;
-      ReteUnetConfig arch;
-      parse_size (names[i], &arch, NULL);
+      SweepCell cell;
+      parse_cell (names[i], &cell, NULL);
+      ReteUnetConfig arch = cell.arch;
+      int photographs = cell.photographs > 0 ? MIN (cell.photographs, (int) training->len)
+                                             : (int) training->len;
       arch.in_channels = ((ReteTrainPair *) pairs->pdata[0])->input->channels;
       for (int r = 1; r <= repeats; r++)
         {
@@ -133,9 +198,11 @@ rete_cmd_sweep (int argc, char **argv)
           c.seed = (guint64) r;
           c.metadata = (const char *const *) meta;
           ReteTrainReport report;
-          ReteModel *model = rete_train (&c, (ReteTrainSample *) training->data,
-                                         (int) training->len, (ReteTrainSample *) validation->data,
+          GArray *chosen = choose_photographs (training, cell.photographs, (guint64) r);
+          ReteModel *model = rete_train (&c, (ReteTrainSample *) chosen->data, (int) chosen->len,
+                                         (ReteTrainSample *) validation->data,
                                          (int) validation->len, NULL, NULL, &report, &error);
+          g_array_unref (chosen);
           ReteTrainFigures f;
           if (model == NULL || !rete_train_figures (model, validation, &f, &error))
             {
@@ -146,9 +213,10 @@ rete_cmd_sweep (int argc, char **argv)
           sum += f.auc;
           sum2 += f.auc * f.auc;
           infer += f.seconds_per_image;
-          g_string_append_printf (rows, "%s,%d,%d,%d,%" G_GSIZE_FORMAT ",%d,%.4f,%d,%d,%.1f,%.3f\n",
-                                  names[i], arch.levels, arch.base_filters, arch.convs_per_block,
-                                  weights, r, f.auc, report.best_step, report.restarts,
+          g_string_append_printf (rows, "%s,%d,%d,%d,%s,%d,%" G_GSIZE_FORMAT ",%d,%.4f,%d,%d,"
+                                  "%.1f,%.3f\n", names[i], arch.levels, arch.base_filters,
+                                  arch.convs_per_block, arch.activation ? "relu" : "identity",
+                                  photographs, weights, r, f.auc, report.best_step, report.restarts,
                                   report.seconds, f.seconds_per_image);
           if (!quiet)
             fprintf (stderr, "rete sweep: %s seed %d: AUC %.4f (%.0f s)\n", names[i], r, f.auc,
@@ -157,9 +225,9 @@ rete_cmd_sweep (int argc, char **argv)
         }
       double mean = sum / repeats;
       double sd = repeats > 1 ? sqrt (MAX (0.0, (sum2 - repeats * mean * mean) / (repeats - 1))) : 0;
-      printf ("| %s | %d × %d × %d | %" G_GSIZE_FORMAT " | %.4f ± %.4f | %.2f |\n", names[i],
-              arch.levels, arch.base_filters, arch.convs_per_block, weights, mean, sd,
-              infer / repeats);
+      printf ("| %s | %d × %d × %d | %s | %d | %" G_GSIZE_FORMAT " | %.4f ± %.4f | %.2f |\n",
+              names[i], arch.levels, arch.base_filters, arch.convs_per_block,
+              arch.activation ? "ReLU" : "none", photographs, weights, mean, sd, infer / repeats);
       fflush (stdout);
     }
   if (csv != NULL && !rete_io_save_text (csv, rows->str, (gssize) rows->len, &error))

@@ -898,6 +898,48 @@ test_cli_train (void)
   cli_run_free (r);
 }
 
+/* `rete sweep`: a grid cell per size, with the activation turned off (-linear) and with fewer
+ * training photographs (@N); one CSV row per training; a malformed cell is a usage error. */
+static void
+test_cli_sweep (void)
+{
+  rete_io_init ();
+  g_autofree char *root = rete_test_tmp_path ("sweep");
+  g_autofree char *photos = g_build_filename (root, "photos", NULL);
+  g_autofree char *annotations = g_build_filename (root, "annotations", NULL);
+  g_autofree char *csv = g_build_filename (root, "grid.csv", NULL);
+  g_mkdir_with_parents (photos, 0755);
+  g_mkdir_with_parents (annotations, 0755);
+  write_pair_files (photos, annotations, "a", 64, 1, FALSE, 64);
+  write_pair_files (photos, annotations, "b", 64, 2, FALSE, 64);
+  write_pair_files (photos, annotations, "c", 64, 3, FALSE, 64);
+  CliRun *r = rete_run ("sweep", "--annotations", annotations, "--validate", "c",
+                        "--sizes", "2x2x1,2x2x1-linear@1", "--repeats", "2", "--steps", "4",
+                        "--batch", "2", "--patch", "32", "--validate-every", "2", "--csv", csv,
+                        "--quiet", photos, NULL);
+  g_assert_cmpint (r->status, ==, 0);
+  g_assert_nonnull (strstr (r->out, "| 2x2x1 | 2 × 2 × 1 | ReLU | 2 |"));
+  g_assert_nonnull (strstr (r->out, "| 2x2x1-linear@1 | 2 × 2 × 1 | none | 1 |"));
+  cli_run_free (r);
+  char *text = NULL;
+  g_assert_true (g_file_get_contents (csv, &text, NULL, NULL));
+  g_auto (GStrv) lines = g_strsplit (g_strchomp (text), "\n", -1);
+  g_free (text);
+  g_assert_cmpuint (g_strv_length (lines), ==, 5); /* header + 2 sizes × 2 seeds */
+  g_assert_true (g_str_has_prefix (lines[1], "2x2x1,2,2,1,relu,2,"));
+  g_assert_true (g_str_has_prefix (lines[3], "2x2x1-linear@1,2,2,1,identity,1,"));
+
+  const char *bad[] = { "2x2", "2x2x1@0", "2x2x1@many", "9x2x1" };
+  for (gsize i = 0; i < G_N_ELEMENTS (bad); i++)
+    {
+      r = rete_run ("sweep", "--annotations", annotations, "--validate", "c", "--sizes", bad[i],
+                    photos, NULL);
+      g_assert_cmpint (r->status, ==, 2);
+      g_assert_nonnull (strstr (r->err, "--help"));
+      cli_run_free (r);
+    }
+}
+
 static void
 add_run_tests (void)
 {
@@ -908,6 +950,7 @@ add_run_tests (void)
   g_test_add_func ("/nn/train/dead-network", test_dead_network_restarts);
   g_test_add_func ("/nn/train/bad-input", test_bad_input);
   g_test_add_func ("/nn/train/command", test_cli_train);
+  g_test_add_func ("/nn/train/sweep-command", test_cli_sweep);
 }
 
 
