@@ -231,8 +231,10 @@ rete_cli_find_model (const char *name_or_file, GError **error)
     }
   g_ptr_array_sort (names, compare_names);
   GString *found = g_string_new (NULL);
+  /* a name found in two folders (installed and source tree) is listed once */
   for (guint i = 0; i < names->len; i++)
-    g_string_append_printf (found, "%s%s", i ? ", " : "", (const char *) names->pdata[i]);
+    if (i == 0 || g_strcmp0 (names->pdata[i], names->pdata[i - 1]) != 0)
+      g_string_append_printf (found, "%s%s", found->len ? ", " : "", (const char *) names->pdata[i]);
   g_ptr_array_free (names, TRUE);
   g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_USAGE,
                "--model %s: no such model file, and no model of that name in %s (models found: "
