@@ -4,8 +4,10 @@
  * parameters; ROC AUC against the first observer (manual1/) inside the FOV, with
  * rete_agreement_compute. One image's AUC is checked against sklearn.metrics.roc_auc_score.
  * The second observer (manual2/) against the first gives the human agreement to compare with:
- * Fraz 2012 reports for the second observer on CHASE_DB1 accuracy 0.9545, sensitivity 0.7425,
- * specificity 0.9793 (from memory; their FOV masks and image set — all 28 — differ from ours).
+ * Fraz 2012 report the second observer's accuracy on CHASE_DB1 near 0.95 (from memory: the
+ * exact figure could not be checked here, and their FOV masks and image set — all 28 — differ
+ * from ours). Only that accuracy is a published check; the floors on sensitivity and
+ * specificity are our own measurement (tests/CHASE-CLASSICAL.md) less a margin.
  *
  * Images: all 20 of the training part by default (33 s of CPU time in all, so about 20 s on two
  * free cores; the filters' own time is printed); RETE_CHASE_IMAGES=n takes the first n of the
@@ -200,12 +202,12 @@ test_second_observer (void)
       spec += results[i].observer2.specificity / n_done;
     }
   g_test_message ("second observer against the first, inside the FOV, mean of %d images: "
-                  "accuracy %.4f, sensitivity %.4f, specificity %.4f (Fraz 2012, from memory: "
-                  "0.9545, 0.7425, 0.9793; asked: within 0.01, 0.03 and 0.01 of these)", n_done,
-                  acc, sens, spec);
-  g_assert_cmpfloat (fabs (acc - 0.9545), <=, 0.01);
-  g_assert_cmpfloat (fabs (sens - 0.7425), <=, 0.03);
-  g_assert_cmpfloat (fabs (spec - 0.9793), <=, 0.01);
+                  "accuracy %.4f, sensitivity %.4f, specificity %.4f (asked: accuracy within "
+                  "0.01 of 0.95, Fraz 2012, from memory; sensitivity >= 0.71 and specificity "
+                  ">= 0.97, measured here 0.7425 and 0.9793)", n_done, acc, sens, spec);
+  g_assert_cmpfloat (fabs (acc - 0.95), <=, 0.01);
+  g_assert_cmpfloat (sens, >=, 0.71);
+  g_assert_cmpfloat (spec, >=, 0.97);
 }
 
 int
