@@ -17,6 +17,9 @@ fi
 results=$(mktemp)
 trap 'rm -f "$results"' EXIT
 export RETE_SOURCE_DIR=$here RETE_DATA_DIR=$here/../shared/data
+# An environment may force OpenBLAS's kernel choice (OPENBLAS_CORETYPE=Haswell on an AVX-512
+# machine was seen here) or its cache size: both sides run with OpenBLAS's own choice.
+unset OPENBLAS_CORETYPE OPENBLAS_L2_SIZE
 for n in "${names[@]}"; do
   exe="$build/bench/bench-${n//_/-}"
   [ -x "$exe" ] || exe="$build/bench/bench_$n"
@@ -28,8 +31,7 @@ for n in "${names[@]}"; do
   fi
   if [ -f "$here/bench/ref_$n.py" ]; then
     echo "== ref_$n.py" >&2
-    env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE \
-      LD_LIBRARY_PATH=/usr/lib/x86_64-linux-gnu/openblas-pthread${LD_LIBRARY_PATH:+:$LD_LIBRARY_PATH} \
+    LD_LIBRARY_PATH=/usr/lib/x86_64-linux-gnu/openblas-pthread${LD_LIBRARY_PATH:+:$LD_LIBRARY_PATH} \
       /usr/bin/python3 "$here/bench/ref_$n.py" | tee -a "$results" >&2
   fi
 done
