@@ -336,3 +336,26 @@ rete_test_max_abs_diff (const float *a, const float *b, gsize n, gsize *where)
     *where = at;
   return worst;
 }
+
+double
+rete_test_fraction_near (const float *a, const float *b, int w, int h, gsize *count)
+{
+  gsize n = 0, near = 0;
+  for (int y = 0; y < h; y++)
+    for (int x = 0; x < w; x++)
+      {
+        if (a[(gsize) y * w + x] < 0.5f)
+          continue;
+        n++;
+        gboolean found = FALSE;
+        for (int dy = -1; dy <= 1 && !found; dy++)
+          for (int dx = -1; dx <= 1 && !found; dx++)
+            {
+              int xx = x + dx, yy = y + dy;
+              found = xx >= 0 && yy >= 0 && xx < w && yy < h && b[(gsize) yy * w + xx] >= 0.5f;
+            }
+        near += found;
+      }
+  *count = n;
+  return n > 0 ? (double) near / n : 1.0;
+}

@@ -39,4 +39,9 @@ char *rete_test_python (const char *script, gboolean *skipped, GError **error, .
 /* Largest absolute difference between two arrays, and its index. */
 double rete_test_max_abs_diff (const float *a, const float *b, gsize n, gsize *where);
 
+/* Of the pixels >= 0.5 in a (w × h), the fraction that have a pixel >= 0.5 of b within one
+ * pixel (8-neighbourhood or the same place); their number in *count. 1 when there are none.
+ * For comparing skeletons, which may sit one pixel apart and still be the same line. */
+double rete_test_fraction_near (const float *a, const float *b, int w, int h, gsize *count);
+
 #endif /* RETE_TEST_H */

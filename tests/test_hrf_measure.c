@@ -83,29 +83,6 @@ test_figures (gconstpointer data)
 #define OURS_NEAR_SKIMAGE 0.995
 #define SKIMAGE_NEAR_OURS 0.95
 
-static double
-fraction_near (const float *a, const float *b, int w, int h, gsize *count)
-{
-  gsize n = 0, near = 0;
-  for (int y = 0; y < h; y++)
-    for (int x = 0; x < w; x++)
-      {
-        if (a[(gsize) y * w + x] < 0.5f)
-          continue;
-        n++;
-        gboolean found = FALSE;
-        for (int dy = -1; dy <= 1 && !found; dy++)
-          for (int dx = -1; dx <= 1 && !found; dx++)
-            {
-              int xx = x + dx, yy = y + dy;
-              found = xx >= 0 && yy >= 0 && xx < w && yy < h && b[(gsize) yy * w + xx] >= 0.5f;
-            }
-        near += found;
-      }
-  *count = n;
-  return n > 0 ? (double) near / n : 1.0;
-}
-
 static void
 test_skeleton (gconstpointer data)
 {
@@ -139,8 +116,8 @@ test_skeleton (gconstpointer data)
       same += a && b;
       either += a || b;
     }
-  double ours_near = fraction_near (ours->data, reference->data, w, h, &n_ours);
-  double ref_near = fraction_near (reference->data, ours->data, w, h, &n_ref);
+  double ours_near = rete_test_fraction_near (ours->data, reference->data, w, h, &n_ours);
+  double ref_near = rete_test_fraction_near (reference->data, ours->data, w, h, &n_ref);
   g_test_message ("%s: ours %" G_GSIZE_FORMAT " px, skimage %" G_GSIZE_FORMAT " px, identical "
                   "%.1f%% of either; ours within 1 px of skimage %.2f%%, skimage within 1 px "
                   "of ours %.2f%%", name, n_ours, n_ref, 100.0 * same / MAX (either, 1),
