@@ -12,14 +12,11 @@
 #include <unistd.h>
 
 #include "agreement_report.h"
-#ifdef HAVE_ROC_PLOT
 #include "rete_roc_plot.h"
-#endif
 
 static const char *const reference_suffixes[] = { "-vessels", NULL };
 static const char *const mask_suffixes[] = { "-fov", "_mask", "_fov", "-mask", NULL };
 
-#ifdef HAVE_ROC_PLOT
 static char *
 roc_path (const AgreementRun *run, const ReteCliInput *map)
 {
@@ -27,13 +24,11 @@ roc_path (const AgreementRun *run, const ReteCliInput *map)
     return g_strdup (run->roc);
   return rete_cli_output_path (run->roc, map->stem, "-roc", "png");
 }
-#endif
 
 static gboolean
 write_roc (const AgreementRun *run, const ReteAgreement *a, const ReteCliInput *map,
            GError **error)
 {
-#ifdef HAVE_ROC_PLOT
   g_autofree char *path = roc_path (run, map);
   if (!rete_cli_guard_check (run->guard, path, error))
     return FALSE;
@@ -57,11 +52,6 @@ write_roc (const AgreementRun *run, const ReteAgreement *a, const ReteCliInput *
       return FALSE;
     }
   return TRUE;
-#else
-  g_set_error (error, RETE_CLI_ERROR, RETE_CLI_ERROR_OUTPUT,
-               "this build of rete has no ROC plots (cli/roc_plot.c was not built)");
-  return FALSE;
-#endif
 }
 
 static gboolean
@@ -203,13 +193,6 @@ rete_cmd_agreement (int argc, char **argv)
       rete_cli_usage_error (command, "--roc-points must be 2 to 100000 and --jobs at least 0");
       goto out;
     }
-#ifndef HAVE_ROC_PLOT
-  if (roc != NULL)
-    {
-      rete_cli_usage_error (command, "--roc: this build of rete has no ROC plots");
-      goto out;
-    }
-#endif
   static const char *const skip[] = { "-fov", "-roc", NULL };
   run.maps = rete_cli_expand_inputs (argv + 1, recursive, skip, &error);
   if (run.maps == NULL)

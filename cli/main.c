@@ -20,17 +20,11 @@ static const ReteCommand commands[] = {
   { "fov", rete_cmd_fov, "field-of-view masks of photographs" },
   { "agreement", rete_cmd_agreement,
     "agreement of vessel maps with references: AUC, sensitivity, specificity, Dice, ROC plot" },
-#ifdef HAVE_CMD_MEASURE
   { "measure", rete_cmd_measure,
     "measurements of binary vessel maps: density, length, branching, calibre, tortuosity,\n"
     "             fractal dimension" },
-#endif
-#ifdef HAVE_CMD_TRAIN
   { "train", rete_cmd_train, "train a U-Net model on photographs and their vessel maps" },
-#endif
-#ifdef HAVE_CMD_SWEEP
   { "sweep", rete_cmd_sweep, "train a grid of U-Net sizes on your photographs and compare them" },
-#endif
   { "synth", rete_cmd_synth,
     "synthetic fundus photographs with exact vessel and FOV truth (invented data)" },
 };
