@@ -7,8 +7,9 @@
  * offsets of W columns into it, so out_band (C_out, rows·W) = bias + Σ_ky weight_ky (C_out,
  * 3·C_in) × columns[:, ky·W ...] by three cblas_sgemm calls. Bands keep the matrix within a few
  * megabytes. Backward: dweight_ky += dout_band × shifted columnsᵀ; shifted dcolumns +=
- * weight_kyᵀ × dout_band, folded back into dinp (col2im). The naive loops stay beside each
- * kernel; tests hold the two together.
+ * weight_kyᵀ × dout_band, folded back into dinp (col2im). Where the processor has AVX-512 the
+ * direct kernels of conv_direct.c replace all of this but the bias gradient. The naive loops
+ * stay beside each kernel; tests hold the two together.
  */
 #include "layers.h"
 
@@ -105,6 +106,31 @@ weights_by_row (const float *weight, int C_in, int C_out)
   return w;
 }
 
+/* bias gradient: dbias[c] += Σ_i d[c, i] over a (C, plane) block, in 16 float lanes (which
+ * the compiler turns into vector adds) summed in double at the end; each lane sums plane/16
+ * terms. (A plain sum in double stays scalar: the conversion of every term keeps the compiler
+ * from vectorising it.) */
+static void
+add_channel_sums (float *dbias, const float *d /* (C, plane) */, int C, gsize plane)
+{
+  enum { LANES = 16 };
+  for (int c = 0; c < C; c++)
+    {
+      const float *p = d + (gsize) c * plane;
+      float lanes[LANES] = { 0 };
+      gsize i = 0;
+      for (; i + LANES <= plane; i += LANES)
+        for (int k = 0; k < LANES; k++)
+          lanes[k] += p[i + k];
+      double sum = 0.0;
+      for (; i < plane; i++)
+        sum += p[i];
+      for (int k = 0; k < LANES; k++)
+        sum += lanes[k];
+      dbias[c] += (float) sum;
+    }
+}
+
 /* The direct kernel (conv_direct.c) where the processor has AVX-512, unless the environment
  * sets RETE_NN_GEMM (for tests and comparisons); decided once. */
 static gboolean
@@ -178,14 +204,18 @@ void
 conv3x3_backward (float *dinp, float *dweight, float *dbias, const float *dout,
                   const float *inp, const float *weight, int N, int C_in, int C_out, int H, int W)
 {
-  if (dinp != NULL && use_direct_kernel ())
+  gsize plane = (gsize) H * W;
+  for (int n = 0; n < N; n++)
+    add_channel_sums (dbias, dout + (gsize) n * C_out * plane, C_out, plane);
+  if (use_direct_kernel ())
     {
-      conv3x3_backward_input_direct (dinp, dout, weight, N, C_in, C_out, H, W);
-      dinp = NULL; /* done: the GEMMs below give the weight gradient only */
+      if (dinp != NULL)
+        conv3x3_backward_input_direct (dinp, dout, weight, N, C_in, C_out, H, W);
+      conv3x3_backward_weight_direct (dweight, dout, inp, N, C_in, C_out, H, W);
+      return;
     }
   int rows = band_rows (W, H);
   int K = 3 * C_in;
-  gsize plane = (gsize) H * W;
   gsize band = (gsize) K * (rows + 2) * W;
   float *columns = g_malloc (sizeof (float) * band);
   float *dcolumns = dinp != NULL ? g_malloc (sizeof (float) * band) : NULL;
@@ -195,14 +225,6 @@ conv3x3_backward (float *dinp, float *dweight, float *dbias, const float *dout,
     {
       const float *inp_n = inp + (gsize) n * C_in * plane;
       const float *dout_n = dout + (gsize) n * C_out * plane;
-      for (int co = 0; co < C_out; co++)
-        {
-          const float *d = dout_n + co * plane;
-          double sum = 0.0;
-          for (gsize i = 0; i < plane; i++)
-            sum += d[i];
-          dbias[co] += (float) sum;
-        }
       for (int y0 = 0; y0 < H; y0 += rows)
         {
           int r = MIN (rows, H - y0);
@@ -316,13 +338,7 @@ conv1x1_backward (float *dinp, float *dweight, float *dbias, const float *dout,
   for (int n = 0; n < N; n++)
     {
       const float *dout_n = dout + (gsize) n * C_out * plane;
-      for (int co = 0; co < C_out; co++)
-        {
-          double sum = 0.0;
-          for (gsize i = 0; i < plane; i++)
-            sum += dout_n[co * plane + i];
-          dbias[co] += (float) sum;
-        }
+      add_channel_sums (dbias, dout_n, C_out, plane);
       cblas_sgemm (CblasRowMajor, CblasNoTrans, CblasTrans, C_out, C_in, plane, 1.0f, dout_n,
                    plane, inp + (gsize) n * C_in * plane, plane, 1.0f, dweight, C_in);
       if (dinp != NULL)

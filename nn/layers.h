@@ -46,6 +46,11 @@ RETE_API void conv3x3_backward_input_direct (float *dinp,         /* (N, C_in, H
                                              const float *dout,   /* (N, C_out, H, W) */
                                              const float *weight, /* (C_out, C_in, 3, 3) */
                                              int N, int C_in, int C_out, int H, int W);
+/* dweight += the weight gradient of the 3×3 convolution, by the direct kernel (AVX-512 only). */
+RETE_API void conv3x3_backward_weight_direct (float *dweight,    /* (C_out, C_in, 3, 3) */
+                                              const float *dout, /* (N, C_out, H, W) */
+                                              const float *inp,  /* (N, C_in, H, W) */
+                                              int N, int C_in, int C_out, int H, int W);
 RETE_API void conv3x3_backward (float *dinp,         /* (N, C_in, H, W), may be NULL (first layer) */
                        float *dweight,      /* (C_out, C_in, 3, 3) */
                        float *dbias,        /* (C_out) */
