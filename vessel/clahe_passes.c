@@ -13,10 +13,9 @@
 #endif
 
 /* Pass 1: range of the input inside the FOV, whether the FOV has a pixel, values that are
- * not numbers (x - x is 0 for every finite x, NaN for NaN and infinities); and the 16-bit
- * value of each pixel, rint (v × 65535) as skimage's img_as_uint on float32 (the
- * conversion rounds to nearest, ties to even, as np.rint), clamped to [0, 1] first since
- * outside the FOV anything goes. */
+ * not numbers (x - x is 0 for every finite x, NaN for NaN and infinities), and the FOV as a
+ * byte mask. (The bins come in pass 2, from the grey values again, once the range is known:
+ * reading the floats twice costs less than writing and reading back a 16-bit copy.) */
 #ifdef __SSE2__
 /* Four bytes of the FOV byte mask (0/1) as a lane mask of four floats. */
 static inline __m128
@@ -41,22 +40,15 @@ rete_clahe_range_rows (int first, int last, gpointer data)
     {
       const float *g = t->grey + (gsize) y * t->width;
       const float *f = t->fov ? t->fov + (gsize) y * t->width : NULL;
-      guint16 *u = t->bins + (gsize) y * t->width;
       guint8 *inside = t->inside ? t->inside + (gsize) y * t->width : NULL;
       int x = 0;
 #ifdef __SSE2__
       __m128 lo4 = _mm_set1_ps (lo), hi4 = _mm_set1_ps (hi), bad4 = _mm_setzero_ps ();
       __m128 in4 = _mm_setzero_ps (), zero = _mm_setzero_ps (), half = _mm_set1_ps (0.5f);
       __m128 big = _mm_set1_ps (G_MAXFLOAT), small = _mm_set1_ps (-G_MAXFLOAT);
-      __m128 one = _mm_set1_ps (1.0f), scale = _mm_set1_ps (65535.0f);
-      __m128i bias = _mm_set1_epi32 (32768), flip = _mm_set1_epi16 ((short) 0x8000);
       for (; x + 4 <= t->width; x += 4)
         {
           __m128 v = _mm_loadu_ps (g + x);
-          /* to 16 bits: SSE2 packs signed, so shift by 32768 around the packing */
-          __m128i q = _mm_cvtps_epi32 (_mm_mul_ps (_mm_min_ps (_mm_max_ps (v, zero), one), scale));
-          q = _mm_packs_epi32 (_mm_sub_epi32 (q, bias), _mm_sub_epi32 (q, bias));
-          _mm_storel_epi64 ((__m128i *) (u + x), _mm_xor_si128 (q, flip));
           bad4 = _mm_or_ps (bad4, _mm_cmpneq_ps (_mm_sub_ps (v, v), zero));
           if (f != NULL)
             {
@@ -94,7 +86,6 @@ rete_clahe_range_rows (int first, int last, gpointer data)
           gboolean in = f == NULL || f[x] > 0.5f;
           if (inside != NULL)
             inside[x] = (guint8) in;
-          u[x] = (guint16) lrintf (v > 0.0f ? (v < 1.0f ? v : 1.0f) * 65535.0f : 0.0f);
           any_in |= in;
           any_bad |= !(v - v == 0.0f) || (f != NULL && !(f[x] - f[x] == 0.0f));
           if (in)
@@ -112,68 +103,31 @@ rete_clahe_range_rows (int first, int last, gpointer data)
   g_mutex_unlock (&c->lock);
 }
 
-/* Smallest and largest of v[0..n) where the byte mask f is 1 (everywhere when f is NULL),
- * folded into *lo and *hi. */
-static void
-row_range (const float *v, const guint8 *f, int n, float *lo, float *hi)
-{
-  int x = 0;
-  float l = *lo, h = *hi;
-#ifdef __SSE2__
-  __m128 lo4 = _mm_set1_ps (l), hi4 = _mm_set1_ps (h);
-  for (; x + 4 <= n; x += 4)
-    {
-      __m128 a = _mm_loadu_ps (v + x);
-      if (f != NULL)
-        {
-          __m128 in = mask4 (f + x);
-          lo4 = _mm_min_ps (lo4, _mm_or_ps (_mm_and_ps (in, a), _mm_andnot_ps (in, lo4)));
-          hi4 = _mm_max_ps (hi4, _mm_or_ps (_mm_and_ps (in, a), _mm_andnot_ps (in, hi4)));
-        }
-      else
-        {
-          lo4 = _mm_min_ps (lo4, a);
-          hi4 = _mm_max_ps (hi4, a);
-        }
-    }
-  float ls[4], hs[4];
-  _mm_storeu_ps (ls, lo4);
-  _mm_storeu_ps (hs, hi4);
-  for (int k = 0; k < 4; k++)
-    {
-      l = MIN (l, ls[k]);
-      h = MAX (h, hs[k]);
-    }
-#endif
-  for (; x < n; x++)
-    if (f == NULL || f[x])
-      {
-        l = MIN (l, v[x]);
-        h = MAX (h, v[x]);
-      }
-  *lo = l;
-  *hi = h;
-}
-
 /* Pass 2 (clahe_tiles.c): bins, histograms, mappings.
- * Pass 3: bilinear interpolation between the mappings of the four tiles around each pixel.
- * `pairs` holds, for each row of blocks, the mappings of the tile above and below side by
- * side, so that one 8-byte load brings both; the vertical blend comes first, then the
- * horizontal one. */
-void
-rete_clahe_interpolate_rows (int first, int last, gpointer data)
+ * Pass 3: bilinear interpolation between the mappings of the four tiles around each pixel,
+ * and the range of the result inside the FOV (taken on the way, so that the result is not
+ * read again for it). `pairs` holds, for each row of blocks, the mappings of the tile above
+ * and below side by side, so that one 8-byte load brings both; the vertical blend comes
+ * first, then the horizontal one. */
+static inline __attribute__ ((always_inline)) void
+interpolate_rows (ReteClahe *c, int first, int last, gboolean wide)
 {
-  ReteClahe *c = data;
   const ReteClaheTiles *t = &c->tiles;
   int nb = t->n_bins, kw = t->kw;
   float lo = G_MAXFLOAT, hi = -G_MAXFLOAT;
+#ifdef __SSE2__
+  __m128 lo4 = _mm_set1_ps (lo), hi4 = _mm_set1_ps (hi);
+#endif
   for (int y = first; y < last; y++)
     {
       int p = y + t->kh / 2, j = p / t->kh;
       float wy = (float) ((double) (p % t->kh) / t->kh);
       const float *block_row = c->pairs + (gsize) j * t->nx * nb * 2;
       gsize row = (gsize) y * t->width;
-      const guint16 *b = t->bins + row;
+      const guint8 *b8 = (const guint8 *) t->bins + row;
+      const guint16 *b16 = (const guint16 *) t->bins + row;
+#define BIN(x) (wide ? (int) b16[x] : (int) b8[x])
+      const guint8 *f = t->inside ? t->inside + row : NULL;
       float *out = c->out + row;
       /* column x sits at x + kw/2 on the grid of blocks; block jx blends tiles jx-1 and jx */
       for (int jx = 0, x = 0; x < t->width; jx++)
@@ -187,11 +141,13 @@ rete_clahe_interpolate_rows (int first, int last, gpointer data)
           for (; x + 4 <= stop; x += 4)
             {
               /* (above, below) of the left and right tile for 4 pixels */
-#define PAIR(side, k) ((const __m64 *) (side + 2 * b[x + (k)]))
-              __m128 l01 = _mm_loadh_pi (_mm_loadl_pi (zero, PAIR (left, 0)), PAIR (left, 1));
-              __m128 l23 = _mm_loadh_pi (_mm_loadl_pi (zero, PAIR (left, 2)), PAIR (left, 3));
-              __m128 r01 = _mm_loadh_pi (_mm_loadl_pi (zero, PAIR (right, 0)), PAIR (right, 1));
-              __m128 r23 = _mm_loadh_pi (_mm_loadl_pi (zero, PAIR (right, 2)), PAIR (right, 3));
+              int i0 = 2 * BIN (x), i1 = 2 * BIN (x + 1), i2 = 2 * BIN (x + 2),
+                  i3 = 2 * BIN (x + 3);
+#define PAIR(side, i) ((const __m64 *) (side + (i)))
+              __m128 l01 = _mm_loadh_pi (_mm_loadl_pi (zero, PAIR (left, i0)), PAIR (left, i1));
+              __m128 l23 = _mm_loadh_pi (_mm_loadl_pi (zero, PAIR (left, i2)), PAIR (left, i3));
+              __m128 r01 = _mm_loadh_pi (_mm_loadl_pi (zero, PAIR (right, i0)), PAIR (right, i1));
+              __m128 r23 = _mm_loadh_pi (_mm_loadl_pi (zero, PAIR (right, i2)), PAIR (right, i3));
 #undef PAIR
               __m128 lt = _mm_shuffle_ps (l01, l23, _MM_SHUFFLE (2, 0, 2, 0));
               __m128 lb = _mm_shuffle_ps (l01, l23, _MM_SHUFFLE (3, 1, 3, 1));
@@ -199,23 +155,60 @@ rete_clahe_interpolate_rows (int first, int last, gpointer data)
               __m128 rb = _mm_shuffle_ps (r01, r23, _MM_SHUFFLE (3, 1, 3, 1));
               __m128 l = _mm_add_ps (lt, _mm_mul_ps (wy4, _mm_sub_ps (lb, lt)));
               __m128 r = _mm_add_ps (rt, _mm_mul_ps (wy4, _mm_sub_ps (rb, rt)));
-              _mm_storeu_ps (out + x, _mm_add_ps (l, _mm_mul_ps (_mm_loadu_ps (w + x),
-                                                                 _mm_sub_ps (r, l))));
+              __m128 o = _mm_add_ps (l, _mm_mul_ps (_mm_loadu_ps (w + x), _mm_sub_ps (r, l)));
+              _mm_storeu_ps (out + x, o);
+              if (f != NULL)
+                {
+                  __m128 in = mask4 (f + x);
+                  lo4 = _mm_min_ps (lo4, _mm_or_ps (_mm_and_ps (in, o), _mm_andnot_ps (in, lo4)));
+                  hi4 = _mm_max_ps (hi4, _mm_or_ps (_mm_and_ps (in, o), _mm_andnot_ps (in, hi4)));
+                }
+              else
+                {
+                  lo4 = _mm_min_ps (lo4, o);
+                  hi4 = _mm_max_ps (hi4, o);
+                }
             }
 #endif
           for (; x < stop; x++)
             {
-              const float *lp = left + 2 * b[x], *rp = right + 2 * b[x];
+              const float *lp = left + 2 * BIN (x), *rp = right + 2 * BIN (x);
               float l = lp[0] + wy * (lp[1] - lp[0]), r = rp[0] + wy * (rp[1] - rp[0]);
-              out[x] = l + w[x] * (r - l);
+              float o = l + w[x] * (r - l);
+              out[x] = o;
+              if (f == NULL || f[x])
+                {
+                  lo = MIN (lo, o);
+                  hi = MAX (hi, o);
+                }
             }
         }
-      row_range (out, t->inside ? t->inside + row : NULL, t->width, &lo, &hi);
+#undef BIN
     }
+#ifdef __SSE2__
+  float ls[4], hs[4];
+  _mm_storeu_ps (ls, lo4);
+  _mm_storeu_ps (hs, hi4);
+  for (int k = 0; k < 4; k++)
+    {
+      lo = MIN (lo, ls[k]);
+      hi = MAX (hi, hs[k]);
+    }
+#endif
   g_mutex_lock (&c->lock);
   c->v_min = MIN (c->v_min, lo);
   c->v_max = MAX (c->v_max, hi);
   g_mutex_unlock (&c->lock);
+}
+
+void
+rete_clahe_interpolate_rows (int first, int last, gpointer data)
+{
+  ReteClahe *c = data;
+  if (c->tiles.wide_bins)
+    interpolate_rows (c, first, last, TRUE);
+  else
+    interpolate_rows (c, first, last, FALSE);
 }
 
 /* Pass 4: the result stretched to [0, 1] inside the FOV (skimage's final
