@@ -38,9 +38,37 @@ load16 (const float *p)
   return v;
 }
 
+/* dst[0 .. n) = [dst +] s (n ≤ VL; nothing when n ≤ 0). */
+__attribute__ ((target ("avx512f,fma"))) static inline void
+store_lanes (float *dst, v16 s, int n, gboolean accumulate)
+{
+  float lanes[VL];
+  if (n <= 0)
+    return;
+  if (n == VL)
+    {
+      if (accumulate)
+        s += load16 (dst);
+      memcpy (dst, &s, sizeof s);
+      return;
+    }
+  if (accumulate)
+    {
+      memset (lanes, 0, sizeof lanes);
+      memcpy (lanes, dst, sizeof (float) * n);
+      s += load16 (lanes);
+    }
+  memcpy (lanes, &s, sizeof s);
+  memcpy (dst, lanes, sizeof (float) * n);
+}
+
 /* Output rows [y0, y0 + rows) of output channels [cb, cb + nc), nc ≤ CB. pad holds input rows
- * y0-1 .. y0+rows (zero outside the image), each `stride` floats with a zero first column;
- * wt (C_in, 9, CB) holds the weights of this channel block, zero for channels past nc. */
+ * y0-1 .. y0+rows (zero outside the image), each `stride` floats with a zero first column, and
+ * one readable row after the last channel's; wt (C_in, 9, CB) holds the weights of this channel
+ * block, zero for channels past nc. A block of 2 vectors is 32 pixels of one row, or, when a
+ * row fits one vector (W ≤ 16, the lowest level of the U-Net), the same pixels of two rows, so
+ * that no half of the accumulators works on padding (a last odd row reads the next row of the
+ * buffer and drops it). */
 __attribute__ ((target ("avx512f,fma"))) static void
 direct_band (float *out_n, const float *pad, const float *wt, const float *bias, int C_in,
              int rows, int stride, int H, int W, int y0, int cb, int nc, gboolean relu,
@@ -48,7 +76,9 @@ direct_band (float *out_n, const float *pad, const float *wt, const float *bias,
 {
   gsize plane = (gsize) H * W;
   gsize pad_plane = (gsize) (rows + 2) * stride;
-  for (int r = 0; r < rows; r++)
+  gboolean two_rows = W <= VL;
+  int second = two_rows ? stride : VL; /* the second vector's reads, after the first's */
+  for (int r = 0; r < rows; r += two_rows ? 2 : 1)
     for (int x = 0; x < W; x += XB)
       {
         v16 acc[CB][2];
@@ -61,7 +91,7 @@ direct_band (float *out_n, const float *pad, const float *wt, const float *bias,
               const float *w9 = wt + ((gsize) ci * 9 + ky * 3) * CB;
               for (int kx = 0; kx < 3; kx++)
                 {
-                  v16 a = load16 (row + kx), b = load16 (row + kx + VL);
+                  v16 a = load16 (row + kx), b = load16 (row + kx + second);
                   const float *w8 = w9 + kx * CB;
                   for (int j = 0; j < CB; j++)
                     {
@@ -70,10 +100,10 @@ direct_band (float *out_n, const float *pad, const float *wt, const float *bias,
                     }
                 }
             }
-        int n = MIN (XB, W - x);
+        int n0 = MIN (VL, W - x);
+        int n1 = two_rows ? (r + 1 < rows ? W : 0) : MIN (VL, W - x - VL);
         for (int j = 0; j < nc; j++)
           {
-            float lanes[XB];
             float *dst = out_n + (cb + j) * plane + (gsize) (y0 + r) * W + x;
             v16 b = (v16) { 0 } + (bias != NULL ? bias[cb + j] : 0.0f);
             v16 s0 = acc[j][0] + b, s1 = acc[j][1] + b;
@@ -82,24 +112,8 @@ direct_band (float *out_n, const float *pad, const float *wt, const float *bias,
                 s0 = (v16) ((vi16) s0 & (s0 > 0)); /* lanes > 0 keep their bits, others 0 */
                 s1 = (v16) ((vi16) s1 & (s1 > 0));
               }
-            if (accumulate)
-              {
-                memset (lanes, 0, sizeof lanes);
-                memcpy (lanes, dst, sizeof (float) * n);
-                s0 += load16 (lanes);
-                s1 += load16 (lanes + VL);
-              }
-            if (n == XB)
-              {
-                memcpy (dst, &s0, sizeof s0);
-                memcpy (dst + VL, &s1, sizeof s1);
-              }
-            else
-              {
-                memcpy (lanes, &s0, sizeof s0);
-                memcpy (lanes + VL, &s1, sizeof s1);
-                memcpy (dst, lanes, sizeof (float) * n);
-              }
+            store_lanes (dst, s0, n0, accumulate);
+            store_lanes (dst + (two_rows ? W : VL), s1, n1, accumulate);
           }
       }
 }
@@ -145,7 +159,9 @@ direct_conv (float *out, const float *inp, const float *wt, const float *bias, i
   /* bands of rows whose bordered copy stays near 256 KB (in the core's L2 cache) */
   int rows = CLAMP ((int) (65536 / ((gsize) C_in * stride)) - 2, 1, H);
   gsize pad_plane_max = (gsize) (rows + 2) * stride;
-  float *pad = g_malloc0 (sizeof (float) * C_in * pad_plane_max);
+  /* fill_band writes every row before it is read; the one after the last channel's (read by
+   * the two-row blocks of an odd band, and dropped) is cleared below */
+  float *pad = g_malloc (sizeof (float) * (C_in * pad_plane_max + stride));
   int n_cb = (C_out + CB - 1) / CB;
   gsize plane = (gsize) H * W;
   for (int n = 0; n < N; n++)
@@ -156,6 +172,7 @@ direct_conv (float *out, const float *inp, const float *wt, const float *bias, i
         {
           int r = MIN (rows, H - y0);
           fill_band (pad, inp_n, C_in, H, W, y0, r, stride);
+          memset (pad + (gsize) C_in * (r + 2) * stride, 0, sizeof (float) * stride);
           for (int b = 0; b < n_cb; b++)
             direct_band (out_n, pad, wt + (gsize) b * C_in * 9 * CB, bias, C_in, r, stride, H, W,
                          y0, b * CB, MIN (CB, C_out - b * CB), relu, accumulate);
