@@ -207,6 +207,35 @@ maxpool2x2_forward (float *out, const float *inp, int N, int C, int H, int W)
       }
 }
 
+/* Backward in 4 windows at a time with masks instead of branches: which element of a window
+ * wins is close to random in a network's activations, so the branches of window_argmax were
+ * mispredicted about half the time (5 % of a training step). The same comparisons in the same
+ * order (strictly greater, so ties go to the first), hence the same winners; the losers get
+ * += 0. GCC's generic vectors: SSE2 on any x86-64, NEON on ARM. */
+typedef float pool_v4 __attribute__ ((vector_size (16)));
+typedef int pool_vi4 __attribute__ ((vector_size (16)));
+
+static inline pool_v4
+pool_select (pool_vi4 mask, pool_v4 yes, pool_v4 no)
+{
+  return (pool_v4) (((pool_vi4) yes & mask) | ((pool_vi4) no & ~mask));
+}
+
+static inline pool_v4
+pool_load (const float *p)
+{
+  pool_v4 v;
+  memcpy (&v, p, sizeof v);
+  return v;
+}
+
+static inline void
+pool_add (float *p, pool_v4 v)
+{
+  v += pool_load (p);
+  memcpy (p, &v, sizeof v);
+}
+
 void
 maxpool2x2_backward (float *dinp, const float *dout, const float *inp, int N, int C, int H, int W)
 {
@@ -217,7 +246,33 @@ maxpool2x2_backward (float *dinp, const float *dout, const float *inp, int N, in
         const float *row0 = inp + (p * H + 2 * y) * W, *row1 = row0 + W;
         float *d0 = dinp + (p * H + 2 * y) * W, *d1 = d0 + W;
         const float *g = dout + (p * Ho + y) * Wo;
-        for (int x = 0; x < Wo; x++)
+        int x = 0;
+        for (; x + 4 <= Wo; x += 4)
+          {
+            pool_v4 u0 = pool_load (row0 + 2 * x), u1 = pool_load (row0 + 2 * x + 4);
+            pool_v4 l0 = pool_load (row1 + 2 * x), l1 = pool_load (row1 + 2 * x + 4);
+            /* the 4 windows' elements (0,0) (0,1) (1,0) (1,1), one vector each */
+            pool_v4 a = __builtin_shuffle (u0, u1, (pool_vi4) { 0, 2, 4, 6 });
+            pool_v4 b = __builtin_shuffle (u0, u1, (pool_vi4) { 1, 3, 5, 7 });
+            pool_v4 c = __builtin_shuffle (l0, l1, (pool_vi4) { 0, 2, 4, 6 });
+            pool_v4 d = __builtin_shuffle (l0, l1, (pool_vi4) { 1, 3, 5, 7 });
+            pool_vi4 over_b = b > a;
+            pool_v4 m = pool_select (over_b, b, a);
+            pool_vi4 over_c = c > m;
+            m = pool_select (over_c, c, m);
+            pool_vi4 win_d = d > m;
+            pool_vi4 win_c = over_c & ~win_d;
+            pool_vi4 win_b = over_b & ~over_c & ~win_d;
+            pool_vi4 win_a = ~over_b & ~over_c & ~win_d;
+            pool_vi4 grad = (pool_vi4) pool_load (g + x);
+            pool_v4 ga = (pool_v4) (grad & win_a), gb = (pool_v4) (grad & win_b);
+            pool_v4 gc = (pool_v4) (grad & win_c), gd = (pool_v4) (grad & win_d);
+            pool_add (d0 + 2 * x, __builtin_shuffle (ga, gb, (pool_vi4) { 0, 4, 1, 5 }));
+            pool_add (d0 + 2 * x + 4, __builtin_shuffle (ga, gb, (pool_vi4) { 2, 6, 3, 7 }));
+            pool_add (d1 + 2 * x, __builtin_shuffle (gc, gd, (pool_vi4) { 0, 4, 1, 5 }));
+            pool_add (d1 + 2 * x + 4, __builtin_shuffle (gc, gd, (pool_vi4) { 2, 6, 3, 7 }));
+          }
+        for (; x < Wo; x++)
           {
             int k = window_argmax (row0, row1, x);
             float *d = k < 2 ? d0 : d1;
