@@ -68,13 +68,11 @@ rete_clahe_clip_histogram (guint32 *hist, int n, gint64 clip)
     }
 }
 
-/* Bins of one row of grey values: rint (v × 65535) as skimage's img_as_uint on float32
- * (SSE2's conversion rounds to nearest, ties to even, as np.rint; values are clamped to
- * [0, 1] first since outside the FOV anything goes), then the table that stretches the
- * 16-bit values over the range seen and bins them. `values` is scratch of `width` ints. */
-static inline __attribute__ ((always_inline)) void
-bin_row (const float *grey, void *bins, int width, const void *lut, gint32 *values,
-         gboolean wide)
+/* 16-bit values of one row of grey values: rint (v × 65535) as skimage's img_as_uint on
+ * float32 (SSE2's conversion rounds to nearest, ties to even, as np.rint; values are
+ * clamped to [0, 1] first since outside the FOV anything goes). */
+static void
+row_values (const float *grey, int width, gint32 *values)
 {
   int x = 0;
 #ifdef __SSE2__
@@ -90,20 +88,21 @@ bin_row (const float *grey, void *bins, int width, const void *lut, gint32 *valu
       float v = grey[x];
       values[x] = (gint32) lrintf ((v > 0.0f ? (v < 1.0f ? v : 1.0f) : 0.0f) * 65535.0f);
     }
-  if (wide)
-    for (x = 0; x < width; x++)
-      ((guint16 *) bins)[x] = ((const guint16 *) lut)[values[x]];
-  else
-    for (x = 0; x < width; x++)
-      ((guint8 *) bins)[x] = ((const guint8 *) lut)[values[x]];
 }
 
-#define BIN(x) (wide ? ((const guint16 *) b)[x] : ((const guint8 *) b)[x])
+/* The bin of the 16-bit value q[x] through the table that stretches the values over the
+ * range seen and bins them, stored as the pixel's bin. */
+#define TAKE_BIN(x) \
+  (wide ? (int) (((guint16 *) b)[x] = ((const guint16 *) lut)[q[x]]) \
+        : (int) (((guint8 *) b)[x] = ((const guint8 *) lut)[q[x]]))
+#define BIN(x) (wide ? (int) ((const guint16 *) b)[x] : (int) ((const guint8 *) b)[x])
 
-/* One image row (its bins b, FOV mask f or NULL) into the histograms of a row of tiles. */
+/* One image row (its 16-bit values q, FOV mask f or NULL) into its bins b and the
+ * histograms of a row of tiles, in one go over the row. */
 static inline __attribute__ ((always_inline)) void
-histogram_row (const ReteClaheTiles *c, const void *b, const guint8 *f, guint32 *row_hist,
-               guint32 *more, gsize row_size, gint64 *row_count, gboolean wide)
+histogram_row (const ReteClaheTiles *c, const gint32 *q, const void *lut, void *b,
+               const guint8 *f, guint32 *row_hist, guint32 *more, gsize row_size,
+               gint64 *row_count, gboolean wide)
 {
   for (int tx = 0; tx < c->nx; tx++)
     {
@@ -116,13 +115,13 @@ histogram_row (const ReteClaheTiles *c, const void *b, const guint8 *f, guint32 
           int x = x0;
           for (; x + 4 <= x1; x += 4)
             {
-              h[BIN (x)]++;
-              h1[BIN (x + 1)]++;
-              h2[BIN (x + 2)]++;
-              h3[BIN (x + 3)]++;
+              h[TAKE_BIN (x)]++;
+              h1[TAKE_BIN (x + 1)]++;
+              h2[TAKE_BIN (x + 2)]++;
+              h3[TAKE_BIN (x + 3)]++;
             }
           for (; x < x1; x++)
-            h[BIN (x)]++;
+            h[TAKE_BIN (x)]++;
           n_in = c->kw;
         }
       else if (x1 <= c->width)
@@ -132,33 +131,40 @@ histogram_row (const ReteClaheTiles *c, const void *b, const guint8 *f, guint32 
           for (; x + 4 <= x1; x += 4)
             {
               int i0 = f[x], i1 = f[x + 1], i2 = f[x + 2], i3 = f[x + 3];
-              h[BIN (x)] += i0;
-              h1[BIN (x + 1)] += i1;
-              h2[BIN (x + 2)] += i2;
-              h3[BIN (x + 3)] += i3;
+              h[TAKE_BIN (x)] += i0;
+              h1[TAKE_BIN (x + 1)] += i1;
+              h2[TAKE_BIN (x + 2)] += i2;
+              h3[TAKE_BIN (x + 3)] += i3;
               n_in += i0 + i1 + i2 + i3;
             }
           for (; x < x1; x++)
             {
               int in = f[x];
-              h[BIN (x)] += in;
+              h[TAKE_BIN (x)] += in;
               n_in += in;
             }
         }
       else
-        for (int p = x0; p < x1; p++)
-          {
-            int x = c->mirror_x[p];
-            if (f == NULL || f[x])
-              {
-                h[BIN (x)]++;
-                n_in++;
-              }
-          }
+        {
+          /* the last tile reaches past the image: the rest of the row's bins first, then
+           * the tile read mirrored */
+          for (int x = x0; x < c->width; x++)
+            TAKE_BIN (x);
+          for (int p = x0; p < x1; p++)
+            {
+              int x = c->mirror_x[p];
+              if (f == NULL || f[x])
+                {
+                  h[BIN (x)]++;
+                  n_in++;
+                }
+            }
+        }
       row_count[tx] += n_in;
     }
 }
 
+#undef TAKE_BIN
 #undef BIN
 
 /* Rows of tiles: bins, histograms, clipping, mappings. */
@@ -187,9 +193,9 @@ tile_rows (ReteClaheTiles *c, int first, int last, gboolean wide)
            * mirrored past the bottom are binned again into a private row (they belong to
            * another worker's tiles) */
           void *b = r < c->height ? (guint8 *) c->bins + bin_size * row : mirrored_row;
-          bin_row (c->grey + row, b, c->width, c->lut, values, wide);
+          row_values (c->grey + row, c->width, values);
           const guint8 *f = c->inside ? c->inside + row : NULL;
-          histogram_row (c, b, f, row_hist, more, row_size, row_count, wide);
+          histogram_row (c, values, c->lut, b, f, row_hist, more, row_size, row_count, wide);
         }
       for (gsize k = 0; k < row_size; k++)
         row_hist[k] += more[k] + more[k + row_size] + more[k + 2 * row_size];
