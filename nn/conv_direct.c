@@ -217,8 +217,9 @@ conv3x3_backward_input_direct (float *dinp, const float *dout, const float *weig
  * pixels in registers, this one keeps taps: 8 output channels × the 3 taps kx of one kernel row
  * ky (24 vector accumulators, each lane a partial sum over the pixels x ≡ lane mod 16), so that
  * each input vector is loaded once for the 8 channels and each dout vector once for 3 taps.
- * dout is copied per band into rows of whole vectors (zero lanes past W, zero channels past
- * C_out), so the loop has neither edge tests nor masks; the input is the same zero-bordered band
+ * dout is read in place when its rows are whole vectors and C_out whole blocks of 8, else
+ * copied per band into that shape (zero lanes past W, zero channels past C_out), so the loop
+ * has neither edge tests nor masks; the input is the same zero-bordered band
  * as the forward's. Summation: per lane over a sub-band of rows (≤ WG_SUB_PIXELS pixels, its
  * dout rows stay in the L1 cache across the three ky), the lanes saved to memory between
  * sub-bands, reduced at the end of the band and added to a per-call gradient: every float sum
@@ -232,11 +233,11 @@ sum_lanes (v16 v)
 }
 
 __attribute__ ((target ("avx512f,fma"))) static void
-weight_band (float *dw /* (C_out, C_in, 9) */, const float *dband /* (n_cb·CB, rows, wpad) */,
+weight_band (float *dw /* (C_out, C_in, 9) */,
+             const float *dband /* (n_cb·CB channels dplane apart, rows, wpad) */, gsize dplane,
              const float *pad, int C_in, int C_out, int rows, int stride, int wpad)
 {
   gsize pad_plane = (gsize) (rows + 2) * stride;
-  gsize dplane = (gsize) rows * wpad;
   int sub = MAX (1, WG_SUB_PIXELS / wpad);
   for (int cb = 0; cb < C_out; cb += CB)
     {
@@ -310,6 +311,13 @@ conv3x3_backward_weight_direct (float *dweight, const float *dout, const float *
         {
           int r = MIN (rows, H - y0);
           fill_band (pad, inp_n, C_in, H, W, y0, r, stride);
+          if (W == wpad && C_out % CB == 0)
+            {
+              /* rows of whole vectors and whole channel blocks (every level of the U-Net): the
+               * kernel reads dout in place */
+              weight_band (dw, dout_n + (gsize) y0 * W, plane, pad, C_in, C_out, r, stride, wpad);
+              continue;
+            }
           for (int co = 0; co < C_out; co++)
             for (int k = 0; k < r; k++)
               {
@@ -320,7 +328,7 @@ conv3x3_backward_weight_direct (float *dweight, const float *dout, const float *
           /* channels past C_out: zero rows (the band's plane changes with r, so clear them) */
           memset (dband + (gsize) C_out * r * wpad, 0,
                   sizeof (float) * (n_cb * CB - C_out) * r * wpad);
-          weight_band (dw, dband, pad, C_in, C_out, r, stride, wpad);
+          weight_band (dw, dband, (gsize) r * wpad, pad, C_in, C_out, r, stride, wpad);
         }
     }
   for (gsize i = 0; i < (gsize) C_out * C_in * 9; i++)
