@@ -320,10 +320,16 @@ static const LayerCase layer_cases[] = {
   { "/nn/layers/conv3x3/wide-bands", LAYER_CONV3, 1, 4, 5, 9, 1100, FALSE }, /* several row bands */
   { "/nn/layers/conv3x3/channel-blocks", LAYER_CONV3, 2, 20, 17, 13, 45, FALSE }, /* 3 blocks of 8, a partial pixel block */
   { "/nn/layers/conv3x3/one-column", LAYER_CONV3, 1, 3, 9, 6, 1, FALSE },
+  /* rows of whole 16-float vectors and channels in whole blocks of 8, as at every U-Net level
+   * of a 64×64 patch: the direct kernels' in-place and two-rows-per-block paths */
+  { "/nn/layers/conv3x3/whole-vectors-16", LAYER_CONV3, 2, 8, 16, 16, 16, FALSE },
+  { "/nn/layers/conv3x3/whole-vectors-32", LAYER_CONV3, 1, 32, 8, 6, 32, FALSE },
+  { "/nn/layers/conv3x3/whole-vectors-64", LAYER_CONV3, 2, 1, 16, 8, 64, FALSE },
   { "/nn/layers/conv1x1/small", LAYER_CONV1, 2, 5, 3, 4, 6, FALSE },
   { "/nn/layers/upconv2x2/small", LAYER_UPCONV, 2, 4, 3, 3, 5, FALSE },
   { "/nn/layers/upconv2x2/wide-bands", LAYER_UPCONV, 1, 3, 2, 5, 2000, FALSE },
   { "/nn/layers/maxpool2x2/small", LAYER_MAXPOOL, 2, 3, 0, 6, 8, FALSE },
+  { "/nn/layers/maxpool2x2/whole-vectors", LAYER_MAXPOOL, 1, 4, 0, 8, 34, FALSE },
   { "/nn/layers/relu/small", LAYER_RELU, 1, 4, 0, 5, 5, FALSE },
   { "/nn/layers/concat/small", LAYER_CONCAT, 2, 3, 2, 4, 5, FALSE },
 };
