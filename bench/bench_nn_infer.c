@@ -2,14 +2,16 @@
  * Prints `RESULT infer-standard <w>x<h> <ms>` and `RESULT infer-tiny <w>x<h> <ms>` (median of
  * the repeats), and the peak resident memory after the standard run. bench/ref_nn_infer.py
  * runs the same networks (tests/ref/nn_unet.py) in PyTorch 1.13 on 2 threads, untiled.
- *   bench-nn-infer [width height [repeats]]     (default 3504 2336 3: an HRF photograph)
+ *   bench-nn-infer [width height [repeats]]     (default 999×960 then 3504×2336, 3 repeats:
+ *                                               a CHASE_DB1 and an HRF photograph)
  *   bench-nn-infer --memory [width height]      the whole learned vessel map (preprocessing,
  *                                               CLAHE, standardisation, inference) of a random
  *                                               RGB photograph with a round FOV, alone in the
  *                                               process: its time and peak resident memory
  * Each RESULT is followed by a comment with the GFLOP/s (what is counted: forward_macs_per_pixel).
- * Networks: standard = 3 levels, 16 filters, 2 convolutions per block; tiny = 2 levels, 8 filters,
- * 1 convolution per block; both ReLU, one input channel, He initialisation (seed 1). */
+ * Networks: the shipped sizes (models/README.md): standard = 3 levels, 16 filters, 2
+ * convolutions per block; tiny = 3 levels, 2 filters, 2 convolutions per block; both ReLU, one
+ * input channel, He initialisation (seed 1). */
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -157,22 +159,29 @@ main (int argc, char **argv)
 {
   if (argc > 1 && strcmp (argv[1], "--memory") == 0)
     return memory_run (argc > 3 ? atoi (argv[2]) : 3504, argc > 3 ? atoi (argv[3]) : 2336);
-  int width = argc > 2 ? atoi (argv[1]) : 3504, height = argc > 2 ? atoi (argv[2]) : 2336;
+  /* default: a CHASE_DB1-sized and an HRF-sized photograph; or the one size given */
+  int sizes[2][2] = { { 999, 960 }, { 3504, 2336 } }, n_sizes = 2;
+  if (argc > 2)
+    sizes[0][0] = atoi (argv[1]), sizes[0][1] = atoi (argv[2]), n_sizes = 1;
   int repeats = argc > 3 ? atoi (argv[3]) : 3;
-  gsize n = (gsize) width * height;
-  float *input = g_new (float, n), *probability = g_new (float, n);
-  guint32 s = 1;
-  for (gsize i = 0; i < n; i++)
+  for (int k = 0; k < n_sizes; k++)
     {
-      s = s * 1664525u + 1013904223u;
-      input[i] = (float) ((s >> 8) * (1.0 / 16777216.0) * 2.0 - 1.0);
+      int width = sizes[k][0], height = sizes[k][1];
+      gsize n = (gsize) width * height;
+      float *input = g_new (float, n), *probability = g_new (float, n);
+      guint32 s = 1;
+      for (gsize i = 0; i < n; i++)
+        {
+          s = s * 1664525u + 1013904223u;
+          input[i] = (float) ((s >> 8) * (1.0 / 16777216.0) * 2.0 - 1.0);
+        }
+      memset (probability, 0, sizeof (float) * n);
+      run ("standard", 3, 16, 2, width, height, repeats, input, probability);
+      printf ("# peak resident memory after infer-standard %dx%d: %.0f MB (threads %d)\n", width,
+              height, peak_rss_kb () / 1024.0, rete_thread_count ());
+      run ("tiny", 3, 2, 2, width, height, repeats, input, probability);
+      g_free (input);
+      g_free (probability);
     }
-  memset (probability, 0, sizeof (float) * n);
-  run ("standard", 3, 16, 2, width, height, repeats, input, probability);
-  printf ("# peak resident memory after infer-standard %dx%d: %.0f MB (threads %d)\n", width,
-          height, peak_rss_kb () / 1024.0, rete_thread_count ());
-  run ("tiny", 2, 8, 1, width, height, repeats, input, probability);
-  g_free (input);
-  g_free (probability);
   return 0;
 }
