@@ -74,12 +74,16 @@ typedef struct {
   int n_passes;
 } Team;
 
+/* One poll of a wait: a pause, and now and then the processor handed to another thread
+ * (on a busy machine the thread waited for may be queued behind this one). */
 static inline void
-cpu_relax (void)
+cpu_relax (int k)
 {
 #if defined(__x86_64__) || defined(__i386__)
   __builtin_ia32_pause ();
 #endif
+  if (k % 64 == 63)
+    g_thread_yield ();
 }
 
 static void
@@ -122,7 +126,7 @@ team_helper (gpointer data, gpointer unused)
       int p = g_atomic_int_get (&team->current);
       for (int k = 0; k < TEAM_SPINS && p == seen; k++)
         {
-          cpu_relax ();
+          cpu_relax (k);
           p = g_atomic_int_get (&team->current);
         }
       if (p == seen)
@@ -196,7 +200,7 @@ team_run (Team *team, int n_items, int chunk, ReteRangeFunc fn, gpointer data)
   g_mutex_unlock (&team->lock);
   team_work (team, p);
   for (int k = 0; k < TEAM_SPINS && g_atomic_int_get (&pass->done) < n_items; k++)
-    cpu_relax ();
+    cpu_relax (k);
   if (g_atomic_int_get (&pass->done) < n_items)
     {
       g_mutex_lock (&team->lock);
