@@ -48,12 +48,22 @@ RETE_API const char *rete_version (void);
 RETE_API int rete_thread_count (void);
 RETE_API void rete_set_thread_count (int n);
 
-/* Runs fn(first, last, user_data) over [0, n_items) split into contiguous chunks,
- * one chunk per worker thread (at most rete_thread_count() threads; the calling
- * thread takes the first chunk). Returns when all chunks are done. Used by the
- * filters and the network for row bands and tiles. */
+/* Runs fn(first, last, user_data) over [0, n_items) split into MIN (rete_thread_count(),
+ * n_items) contiguous chunks of nearly equal size (chunk t is [n_items * t / n, n_items *
+ * (t + 1) / n)). The chunks are run by the calling thread and by librete's worker threads
+ * (started once, kept for later calls), whoever is free first; which thread runs a chunk
+ * varies, the boundaries do not. Returns when all chunks are done, their writes visible to
+ * the caller. May be called from several threads at once and from within fn (the caller
+ * always works through chunks itself, so it never waits on a worker that is not there).
+ * Used by the filters and the network for row bands and tiles. */
 typedef void (*ReteRangeFunc) (int first, int last, gpointer user_data);
 RETE_API void rete_parallel_for (int n_items, ReteRangeFunc fn, gpointer user_data);
+/* The same with chunks of `chunk` items ([k * chunk, MIN ((k + 1) * chunk, n_items))), as
+ * many as that makes: for short passes where a thread held up by other work on the machine
+ * should be made up for by the others. One call of fn over everything when n_items <= chunk
+ * or rete_thread_count() is 1. */
+RETE_API void rete_parallel_for_chunks (int n_items, int chunk, ReteRangeFunc fn,
+                                        gpointer user_data);
 
 G_END_DECLS
 
