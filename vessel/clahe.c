@@ -25,9 +25,10 @@
  * mapping use the number of FOV pixels in it, tiles with fewer than 1/16 of their area inside
  * take the mean mapping of their neighbours (repeated outwards), and pixels outside are 0.
  * The surround then has no influence at all on the result inside.
- * This file holds the checks, the order of the passes and the team of threads that runs
- * them; clahe_passes.c the pixel passes (by rows); clahe_tiles.c the bins, histograms and
- * mappings (by rows of tiles).
+ * This file holds the checks and the order of the passes (each spread over the cores by
+ * rete_parallel_for_chunks, whose kept worker threads cost little per pass); clahe_passes.c
+ * the pixel passes (by rows); clahe_tiles.c the bins, histograms and mappings (by rows of
+ * tiles).
  */
 #include "clahe_private.h"
 
@@ -44,182 +45,6 @@ rete_clahe_params_init (ReteClaheParams *params)
   params->kernel_height = 0;
   params->clip_limit = 0.01;
   params->n_bins = 256;
-}
-
-
-/* ---- one team of threads for all the passes ----
- * The passes are short (about a millisecond for a CHASE_DB1 picture) and follow one another,
- * so starting threads for each of them (rete_parallel_for) cost more than some of the passes
- * themselves. A team takes helpers from a GLib thread pool once per call; each pass is cut
- * into chunks that whoever is free claims, the calling thread takes part and waits for the
- * last chunk, and does the small serial steps between passes. A helper that starts late (or
- * never) changes nothing but the speed: the caller alone can do every chunk. */
-#define TEAM_MAX_PASSES 4
-#define TEAM_DONE G_MAXINT
-#define TEAM_SPINS 4000 /* polls (about 50 µs) before sleeping */
-
-typedef struct {
-  ReteRangeFunc fn;
-  gpointer data;
-  int n_items, chunk;
-  gint next, done;       /* atomic: first item not claimed yet, items finished */
-} TeamPass;
-
-typedef struct {
-  gint ref;              /* atomic */
-  GMutex lock;
-  GCond cond;
-  gint current;          /* atomic: pass published last, -1 before the first, TEAM_DONE */
-  TeamPass passes[TEAM_MAX_PASSES];
-  int n_passes;
-} Team;
-
-/* One poll of a wait: a pause, and now and then the processor handed to another thread
- * (on a busy machine the thread waited for may be queued behind this one). */
-static inline void
-cpu_relax (int k)
-{
-#if defined(__x86_64__) || defined(__i386__)
-  __builtin_ia32_pause ();
-#endif
-  if (k % 64 == 63)
-    g_thread_yield ();
-}
-
-static void
-team_unref (Team *team)
-{
-  if (g_atomic_int_dec_and_test (&team->ref))
-    {
-      g_mutex_clear (&team->lock);
-      g_cond_clear (&team->cond);
-      g_free (team);
-    }
-}
-
-/* Claims and runs chunks of pass p until none is left. */
-static void
-team_work (Team *team, int p)
-{
-  TeamPass *pass = &team->passes[p];
-  int first;
-  while ((first = g_atomic_int_add (&pass->next, pass->chunk)) < pass->n_items)
-    {
-      int last = MIN (first + pass->chunk, pass->n_items);
-      pass->fn (first, last, pass->data);
-      if (g_atomic_int_add (&pass->done, last - first) + (last - first) == pass->n_items)
-        {
-          g_mutex_lock (&team->lock);
-          g_cond_broadcast (&team->cond);
-          g_mutex_unlock (&team->lock);
-        }
-    }
-}
-
-static void
-team_helper (gpointer data, gpointer unused)
-{
-  Team *team = data;
-  int seen = -1;
-  for (;;)
-    {
-      int p = g_atomic_int_get (&team->current);
-      for (int k = 0; k < TEAM_SPINS && p == seen; k++)
-        {
-          cpu_relax (k);
-          p = g_atomic_int_get (&team->current);
-        }
-      if (p == seen)
-        {
-          g_mutex_lock (&team->lock);
-          while ((p = g_atomic_int_get (&team->current)) == seen)
-            g_cond_wait (&team->cond, &team->lock);
-          g_mutex_unlock (&team->lock);
-        }
-      if (p == TEAM_DONE)
-        break;
-      team_work (team, p);
-      seen = p;
-    }
-  team_unref (team);
-}
-
-static GThreadPool *
-team_pool (void)
-{
-  static GThreadPool *pool = NULL;
-  if (g_once_init_enter (&pool))
-    g_once_init_leave (&pool, g_thread_pool_new (team_helper, NULL, -1, FALSE, NULL));
-  return pool;
-}
-
-/* A team of rete_thread_count () threads counting the caller; NULL for the caller alone. */
-static Team *
-team_new (void)
-{
-  int n_threads = rete_thread_count ();
-  if (n_threads <= 1)
-    return NULL;
-  Team *team = g_new0 (Team, 1);
-  team->ref = 1;
-  team->current = -1;
-  g_mutex_init (&team->lock);
-  g_cond_init (&team->cond);
-  GThreadPool *pool = team_pool ();
-  for (int t = 1; t < n_threads && pool != NULL; t++)
-    {
-      g_atomic_int_inc (&team->ref);
-      /* a helper that could not be started stays queued and finds the team done */
-      g_thread_pool_push (pool, team, NULL);
-    }
-  return team;
-}
-
-/* Runs fn over items 0 .. n_items - 1 in chunks of `chunk`, with the team (or alone). */
-static void
-team_run (Team *team, int n_items, int chunk, ReteRangeFunc fn, gpointer data)
-{
-  if (team == NULL || n_items <= chunk)
-    {
-      if (n_items > 0)
-        fn (0, n_items, data);
-      return;
-    }
-  g_assert (team->n_passes < TEAM_MAX_PASSES);
-  int p = team->n_passes++;
-  TeamPass *pass = &team->passes[p];
-  pass->fn = fn;
-  pass->data = data;
-  pass->n_items = n_items;
-  pass->chunk = MAX (chunk, 1);
-  g_atomic_int_set (&pass->next, 0);
-  g_atomic_int_set (&pass->done, 0);
-  g_mutex_lock (&team->lock);
-  g_atomic_int_set (&team->current, p);
-  g_cond_broadcast (&team->cond);
-  g_mutex_unlock (&team->lock);
-  team_work (team, p);
-  for (int k = 0; k < TEAM_SPINS && g_atomic_int_get (&pass->done) < n_items; k++)
-    cpu_relax (k);
-  if (g_atomic_int_get (&pass->done) < n_items)
-    {
-      g_mutex_lock (&team->lock);
-      while (g_atomic_int_get (&pass->done) < n_items)
-        g_cond_wait (&team->cond, &team->lock);
-      g_mutex_unlock (&team->lock);
-    }
-}
-
-static void
-team_free (Team *team)
-{
-  if (team == NULL)
-    return;
-  g_mutex_lock (&team->lock);
-  g_atomic_int_set (&team->current, TEAM_DONE);
-  g_cond_broadcast (&team->cond);
-  g_mutex_unlock (&team->lock);
-  team_unref (team);
 }
 
 /* Rows per chunk of a pass over the rows: a few chunks per thread, so that a thread slowed
@@ -320,7 +145,6 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
   c.g_max = c.v_max = -G_MAXFLOAT;
   g_mutex_init (&c.lock);
   ReteImage *result = NULL;
-  Team *team = NULL;
   t->kw = params->kernel_width > 0 ? params->kernel_width : MAX (grey->width / 8, 1);
   t->kh = params->kernel_height > 0 ? params->kernel_height : MAX (grey->height / 8, 1);
   t->nx = (t->width + t->kw - 1) / t->kw;
@@ -352,8 +176,7 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
                    "not enough memory for CLAHE of a %d×%d image", grey->width, grey->height);
       goto fail;
     }
-  team = team_new ();
-  team_run (team, t->height, row_chunk (t->height), rete_clahe_range_rows, &c);
+  rete_parallel_for_chunks (t->height, row_chunk (t->height), rete_clahe_range_rows, &c);
   if (c.any_not_finite)
     {
       if (rete_image_check_finite (grey, "the image for CLAHE", error))
@@ -419,7 +242,7 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
   t->hist = g_new (guint32, n_maps);
   t->count = g_new (gint64, (gsize) t->nx * t->ny);
   t->maps = g_new0 (float, n_maps);
-  team_run (team, t->ny, 1, rete_clahe_tile_rows, t);
+  rete_parallel_for_chunks (t->ny, 1, rete_clahe_tile_rows, t);
   if (t->fov != NULL)
     rete_clahe_fill_missing_maps (t);
 
@@ -441,9 +264,8 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
         }
     }
   c.pairs = pairs;
-  team_run (team, t->height, row_chunk (t->height), rete_clahe_interpolate_rows, &c);
-  team_run (team, t->height, row_chunk (t->height), rete_clahe_stretch_rows, &c);
-  team_free (team);
+  rete_parallel_for_chunks (t->height, row_chunk (t->height), rete_clahe_interpolate_rows, &c);
+  rete_parallel_for_chunks (t->height, row_chunk (t->height), rete_clahe_stretch_rows, &c);
 
   g_free (weight_x);
   g_free (pairs);
@@ -460,7 +282,6 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
   return result;
 
 fail:
-  team_free (team);
   rete_image_free (result);
   g_free (t->bins);
   g_free (t->inside);
