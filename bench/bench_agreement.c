@@ -14,6 +14,7 @@
 #include <time.h>
 
 #include "rete_agreement.h"
+#include "bench_common.h"
 
 /* splitmix64's finaliser (Steele, Lea & Flood, OOPSLA 2014): the same in ref_agreement.py */
 static guint64
@@ -65,13 +66,6 @@ cpu_ms (void)
   return t.tv_sec * 1e3 + t.tv_nsec / 1e6;
 }
 
-static int
-compare_doubles (const void *a, const void *b)
-{
-  double x = *(const double *) a, y = *(const double *) b;
-  return (x > y) - (x < y);
-}
-
 static void
 bench (int width, int height, gboolean quantised, int runs)
 {
@@ -95,13 +89,12 @@ bench (int width, int height, gboolean quantised, int runs)
       auc = a->auc;
       rete_agreement_free (a);
     }
-  qsort (ms, runs, sizeof *ms, compare_doubles);
-  qsort (cpu, runs, sizeof *cpu, compare_doubles);
+  double median = bench_median (ms, runs), median_cpu = bench_median (cpu, runs);
   printf ("# %dx%d %s: AUC %.12f, runs %d, fastest %.2f ms, slowest %.2f ms, median CPU time "
           "%.2f ms (all threads)\n", width, height, quantised ? "8-bit scores" : "float scores",
-          auc, runs, ms[0], ms[runs - 1], cpu[runs / 2]);
+          auc, runs, ms[0], ms[runs - 1], median_cpu);
   printf ("RESULT %s %dx%d %.2f\n", quantised ? "auc-quantised" : "auc", width, height,
-          ms[runs / 2]);
+          median);
   fflush (stdout);
   g_free (ms);
   g_free (cpu);

@@ -9,6 +9,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include "rete_preprocess.h"
+#include "bench_common.h"
 
 /* The picture of bench/ref_clahe.py: smooth light, two dark curved lines, a bright disc,
  * a fixed pseudo-random texture; 8-bit levels. */
@@ -32,13 +33,6 @@ make_picture (int width, int height)
   return image;
 }
 
-static int
-compare_doubles (const void *a, const void *b)
-{
-  double x = *(const double *) a, y = *(const double *) b;
-  return (x > y) - (x < y);
-}
-
 static double
 median_ms (const ReteImage *grey, const ReteImage *fov, int runs)
 {
@@ -60,8 +54,7 @@ median_ms (const ReteImage *grey, const ReteImage *fov, int runs)
       if (k >= 0)
         ms[k] = (stop - start) / 1000.0;
     }
-  qsort (ms, runs, sizeof (double), compare_doubles);
-  double median = runs % 2 ? ms[runs / 2] : 0.5 * (ms[runs / 2 - 1] + ms[runs / 2]);
+  double median = bench_median (ms, runs);
   g_free (ms);
   return median;
 }

@@ -23,6 +23,7 @@
 #include <string.h>
 #include <time.h>
 #include "rete_filters.h"
+#include "bench_common.h"
 
 /* c given to both sides of the skimage comparison (bench/ref_filters.py: FRANGI_C) */
 #define FRANGI_C 0.05
@@ -51,13 +52,6 @@ make_picture (int width, int height)
         image->data[(gsize) y * width + x] = (float) (round (value * 255) / 255);
       }
   return image;
-}
-
-static int
-compare_doubles (const void *a, const void *b)
-{
-  double x = *(const double *) a, y = *(const double *) b;
-  return (x > y) - (x < y);
 }
 
 typedef enum { FRANGI_SKIMAGE, FRANGI_DERIVATIVES, FRANGI_MAP, MATCHED, FDOG_MAP, LINE_MAP } Job;
@@ -118,8 +112,7 @@ median_ms (Job job, const ReteImage *grey, const ReteImage *fov, int runs, gbool
       if (k >= 0)
         ms[k] = stop - start;
     }
-  qsort (ms, runs, sizeof (double), compare_doubles);
-  double median = runs % 2 ? ms[runs / 2] : 0.5 * (ms[runs / 2 - 1] + ms[runs / 2]);
+  double median = bench_median (ms, runs);
   g_free (ms);
   return median;
 }

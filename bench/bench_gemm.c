@@ -9,16 +9,10 @@
 
 #include <cblas.h>
 #include <glib.h>
+#include "bench_common.h"
 
 /* OpenBLAS's own call (its cblas.h declares it; named here so that another CBLAS still builds) */
 void openblas_set_num_threads (int num_threads);
-
-static int
-compare_doubles (const void *a, const void *b)
-{
-  double x = *(const double *) a, y = *(const double *) b;
-  return (x > y) - (x < y);
-}
 
 int
 main (int argc, char **argv)
@@ -46,8 +40,7 @@ main (int argc, char **argv)
       if (r >= 0)
         ms[r] = (g_get_monotonic_time () - t0) / 1000.0;
     }
-  qsort (ms, repeats, sizeof (double), compare_doubles);
-  double median = repeats % 2 ? ms[repeats / 2] : 0.5 * (ms[repeats / 2 - 1] + ms[repeats / 2]);
+  double median = bench_median (ms, repeats);
   printf ("RESULT sgemm-peak %d %.1f\n", n, median);
   printf ("# sgemm-peak: %.1f GFLOP/s on %d threads (2·n³ FLOP, median of %d; c[0] = %g)\n",
           2.0 * n * n * (double) n / (median * 1e6), threads, repeats, c[0]);

@@ -21,13 +21,7 @@
 
 #include "rete_io.h"
 #include "rete_measure.h"
-
-static int
-compare_doubles (const void *a, const void *b)
-{
-  double x = *(const double *) a, y = *(const double *) b;
-  return (x > y) - (x < y);
-}
+#include "bench_common.h"
 
 typedef enum { ALL, SKELETON, DISTANCE } What;
 
@@ -76,11 +70,9 @@ median_ms (const ReteImage *map, What what, int runs, double *cpu)
       times[r] = (g_get_monotonic_time () - start) / 1000.0;
       cpus[r] = cpu_ms () - cpu_start;
     }
-  qsort (times, runs, sizeof (double), compare_doubles);
-  qsort (cpus, runs, sizeof (double), compare_doubles);
-  double median = times[runs / 2];
+  double median = bench_median (times, runs);
   if (cpu != NULL)
-    *cpu = cpus[runs / 2];
+    *cpu = bench_median (cpus, runs);
   g_free (times);
   g_free (cpus);
   return median;

@@ -8,7 +8,7 @@
  *                                               CLAHE, standardisation, inference) of a random
  *                                               RGB photograph with a round FOV, alone in the
  *                                               process: its time and peak resident memory
- * Each RESULT is followed by a comment with the GFLOP/s (what is counted: forward_macs_per_pixel).
+ * Each RESULT is followed by a comment with the GFLOP/s (what is counted: bench_unet_forward_macs_per_pixel).
  * Networks: the shipped sizes (models/README.md): standard = 3 levels, 16 filters, 2
  * convolutions per block; tiny = 3 levels, 2 filters, 2 convolutions per block; both ReLU, one
  * input channel, He initialisation (seed 1). */
@@ -18,13 +18,7 @@
 
 #include "rete_nn.h"
 #include "rete_learned.h"
-
-static int
-compare_doubles (const void *a, const void *b)
-{
-  double x = *(const double *) a, y = *(const double *) b;
-  return x < y ? -1 : x > y;
-}
+#include "bench_common.h"
 
 static long
 peak_rss_kb (void)
@@ -39,36 +33,6 @@ peak_rss_kb (void)
     }
   g_free (status);
   return kb;
-}
-
-/* Multiply-adds per input pixel of one forward pass: every 3×3 convolution (9·C_in·C_out per
- * pixel of its level), 2×2 up-convolution (4·C_in·C_out per pixel of its input) and the 1×1 head;
- * level l has 4^-l of the pixels. Max-pools, ReLUs, the loss and the optimiser are not counted
- * (no multiply-adds, a few percent of the time). first_conv: the share of the first
- * convolution, whose input gradient backward does not compute. */
-static double
-forward_macs_per_pixel (const ReteUnetConfig *cf, double *first_conv)
-{
-  int L = cf->levels, F = cf->base_filters, k = cf->convs_per_block;
-  double macs = 0.0;
-  for (int l = 0; l < L; l++)
-    {
-      double C = F << l, px = 1.0 / (1 << (2 * l));
-      double c_in = l == 0 ? cf->in_channels : C / 2;
-      for (int j = 0; j < k; j++)
-        macs += 9.0 * (j == 0 ? c_in : C) * C * px;
-    }
-  for (int l = L - 2; l >= 0; l--)
-    {
-      double C = F << l, px = 1.0 / (1 << (2 * l));
-      macs += 4.0 * (2 * C) * C * px / 4; /* input at a quarter of the level's pixels */
-      for (int j = 0; j < k; j++)
-        macs += 9.0 * (j == 0 ? 2 * C : C) * C * px;
-    }
-  macs += F; /* head */
-  if (first_conv != NULL)
-    *first_conv = 9.0 * cf->in_channels * F;
-  return macs;
 }
 
 static void
@@ -96,13 +60,13 @@ run (const char *name, int levels, int filters, int convs, int width, int height
         }
       times[r] = (g_get_monotonic_time () - t0) / 1000.0;
     }
-  qsort (times, repeats, sizeof (double), compare_doubles);
-  printf ("RESULT infer-%s %dx%d %.1f\n", name, width, height, times[repeats / 2]);
+  double median = bench_median (times, repeats);
+  printf ("RESULT infer-%s %dx%d %.1f\n", name, width, height, median);
   /* the forward's multiply-adds over the photograph's pixels (2 FLOP each); the tiles' overlap
    * (halo) and padding are work done but not counted, so this is the useful rate */
-  double gflop = 2.0 * width * height * forward_macs_per_pixel (&cf, NULL) / 1e9;
+  double gflop = 2.0 * width * height * bench_unet_forward_macs_per_pixel (&cf, NULL) / 1e9;
   printf ("# infer-%s: %.1f GFLOP per photograph (convolutions and up-convolutions), %.1f GFLOP/s "
-          "at the median\n", name, gflop, gflop / (times[repeats / 2] / 1e3));
+          "at the median\n", name, gflop, gflop / (median / 1e3));
   fflush (stdout);
   rete_model_free (model);
 }

@@ -4,48 +4,12 @@
  * wall-clock milliseconds over the timed steps (after 3 untimed ones). The reference is
  * bench/ref_nn_train.py (PyTorch 1.13, the same step). Run: bench-nn-train [repeats]
  * prints: RESULT train-step-standard 32x64x64 <ms>, then a comment with the GFLOP/s of the
- * step (what is counted: forward_macs_per_pixel); compare with bench-gemm's sgemm peak. */
+ * step (what is counted: bench_unet_forward_macs_per_pixel); compare with bench-gemm's sgemm peak. */
 #include <stdio.h>
 #include <stdlib.h>
 
 #include "rete_train.h"
-
-static int
-compare_doubles (const void *a, const void *b)
-{
-  double x = *(const double *) a, y = *(const double *) b;
-  return (x > y) - (x < y);
-}
-
-/* Multiply-adds per input pixel of one forward pass: every 3×3 convolution (9·C_in·C_out per
- * pixel of its level), 2×2 up-convolution (4·C_in·C_out per pixel of its input) and the 1×1 head;
- * level l has 4^-l of the pixels. Max-pools, ReLUs, the loss and the optimiser are not counted
- * (no multiply-adds, a few percent of the time). first_conv: the share of the first
- * convolution, whose input gradient backward does not compute. */
-static double
-forward_macs_per_pixel (const ReteUnetConfig *cf, double *first_conv)
-{
-  int L = cf->levels, F = cf->base_filters, k = cf->convs_per_block;
-  double macs = 0.0;
-  for (int l = 0; l < L; l++)
-    {
-      double C = F << l, px = 1.0 / (1 << (2 * l));
-      double c_in = l == 0 ? cf->in_channels : C / 2;
-      for (int j = 0; j < k; j++)
-        macs += 9.0 * (j == 0 ? c_in : C) * C * px;
-    }
-  for (int l = L - 2; l >= 0; l--)
-    {
-      double C = F << l, px = 1.0 / (1 << (2 * l));
-      macs += 4.0 * (2 * C) * C * px / 4; /* input at a quarter of the level's pixels */
-      for (int j = 0; j < k; j++)
-        macs += 9.0 * (j == 0 ? 2 * C : C) * C * px;
-    }
-  macs += F; /* head */
-  if (first_conv != NULL)
-    *first_conv = 9.0 * cf->in_channels * F;
-  return macs;
-}
+#include "bench_common.h"
 
 int
 main (int argc, char **argv)
@@ -98,12 +62,11 @@ main (int argc, char **argv)
       if (r >= 0)
         ms[r] = (g_get_monotonic_time () - t0) / 1000.0;
     }
-  qsort (ms, repeats, sizeof (double), compare_doubles);
-  double median = repeats % 2 ? ms[repeats / 2] : 0.5 * (ms[repeats / 2 - 1] + ms[repeats / 2]);
+  double median = bench_median (ms, repeats);
   printf ("RESULT train-step-standard 32x64x64 %.1f\n", median);
   /* FLOP of the step, 2 per multiply-add: the forward, and backward the weight gradient of every
    * layer and the input gradient of every layer but the first convolution (3 passes less one) */
-  double first, fwd = forward_macs_per_pixel (&arch, &first);
+  double first, fwd = bench_unet_forward_macs_per_pixel (&arch, &first);
   double gflop = 2.0 * N * P * P * (3.0 * fwd - first) / 1e9;
   printf ("# train-step-standard: %.2f GFLOP per step (convolutions and up-convolutions, forward "
           "and backward), %.1f GFLOP/s at the median, %d threads\n", gflop, gflop / (median / 1e3),
