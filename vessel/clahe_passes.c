@@ -27,6 +27,20 @@ mask4 (const guint8 *m)
   __m128i wide = _mm_unpacklo_epi16 (_mm_unpacklo_epi8 (_mm_cvtsi32_si128 (bytes), zero), zero);
   return _mm_castsi128_ps (_mm_cmpgt_epi32 (wide, zero));
 }
+
+/* Folds the four lanes of running minima and maxima into *lo and *hi. */
+static inline void
+fold_range4 (__m128 lo4, __m128 hi4, float *lo, float *hi)
+{
+  float l[4], h[4];
+  _mm_storeu_ps (l, lo4);
+  _mm_storeu_ps (h, hi4);
+  for (int k = 0; k < 4; k++)
+    {
+      *lo = MIN (*lo, l[k]);
+      *hi = MAX (*hi, h[k]);
+    }
+}
 #endif
 
 void
@@ -69,14 +83,7 @@ rete_clahe_range_rows (int first, int last, gpointer data)
               hi4 = _mm_max_ps (hi4, v);
             }
         }
-      float l[4], h[4];
-      _mm_storeu_ps (l, lo4);
-      _mm_storeu_ps (h, hi4);
-      for (int k = 0; k < 4; k++)
-        {
-          lo = MIN (lo, l[k]);
-          hi = MAX (hi, h[k]);
-        }
+      fold_range4 (lo4, hi4, &lo, &hi);
       any_bad |= _mm_movemask_ps (bad4) != 0;
       any_in |= _mm_movemask_ps (in4) != 0 || (f == NULL && x > 0);
 #endif
@@ -186,14 +193,7 @@ interpolate_rows (ReteClahe *c, int first, int last, gboolean wide)
 #undef BIN
     }
 #ifdef __SSE2__
-  float ls[4], hs[4];
-  _mm_storeu_ps (ls, lo4);
-  _mm_storeu_ps (hs, hi4);
-  for (int k = 0; k < 4; k++)
-    {
-      lo = MIN (lo, ls[k]);
-      hi = MAX (hi, hs[k]);
-    }
+  fold_range4 (lo4, hi4, &lo, &hi);
 #endif
   g_mutex_lock (&c->lock);
   c->v_min = MIN (c->v_min, lo);
