@@ -76,10 +76,10 @@ choose_photographs (GArray *training, int n, guint64 seed)
   ReteTrainSample *s = (ReteTrainSample *) chosen->data;
   for (guint i = chosen->len - 1; i > 0; i--)
     {
-      guint j = (guint) (rete_rng_uniform (&rng) * (i + 1));
+      guint j = MIN ((guint) (rete_rng_uniform (&rng) * (i + 1)), i);
       ReteTrainSample t = s[i];
-      s[i] = s[MIN (j, i)];
-      s[MIN (j, i)] = t;
+      s[i] = s[j];
+      s[j] = t;
     }
   g_array_set_size (chosen, n);
   return chosen;

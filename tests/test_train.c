@@ -828,19 +828,25 @@ write_pair_files (const char *photos, const char *annotations, const char *name,
   pair_clear (&p);
 }
 
+/* root/name, made as a folder */
+static char *
+folder_in (const char *root, const char *name)
+{
+  char *path = g_build_filename (root, name, NULL);
+  g_mkdir_with_parents (path, 0755);
+  return path;
+}
+
 static void
 test_cli_train (void)
 {
   rete_io_init ();
   g_autofree char *root = rete_test_tmp_path ("cli");
-  g_autofree char *photos = g_build_filename (root, "photos", NULL);
-  g_autofree char *annotations = g_build_filename (root, "annotations", NULL);
-  g_autofree char *empty = g_build_filename (root, "empty", NULL);
+  g_autofree char *photos = folder_in (root, "photos");
+  g_autofree char *annotations = folder_in (root, "annotations");
+  g_autofree char *empty = folder_in (root, "empty");
   g_autofree char *model = g_build_filename (root, "m.safetensors", NULL);
   g_autofree char *log = g_build_filename (root, "m.csv", NULL);
-  g_mkdir_with_parents (photos, 0755);
-  g_mkdir_with_parents (annotations, 0755);
-  g_mkdir_with_parents (empty, 0755);
   write_pair_files (photos, annotations, "a", 80, 1, FALSE, 80);
   write_pair_files (photos, annotations, "b", 80, 2, TRUE, 80);  /* grey annotation */
   write_pair_files (photos, annotations, "c", 80, 3, FALSE, 80);
@@ -905,11 +911,9 @@ test_cli_sweep (void)
 {
   rete_io_init ();
   g_autofree char *root = rete_test_tmp_path ("sweep");
-  g_autofree char *photos = g_build_filename (root, "photos", NULL);
-  g_autofree char *annotations = g_build_filename (root, "annotations", NULL);
+  g_autofree char *photos = folder_in (root, "photos");
+  g_autofree char *annotations = folder_in (root, "annotations");
   g_autofree char *csv = g_build_filename (root, "grid.csv", NULL);
-  g_mkdir_with_parents (photos, 0755);
-  g_mkdir_with_parents (annotations, 0755);
   write_pair_files (photos, annotations, "a", 64, 1, FALSE, 64);
   write_pair_files (photos, annotations, "b", 64, 2, FALSE, 64);
   write_pair_files (photos, annotations, "c", 64, 3, FALSE, 64);
