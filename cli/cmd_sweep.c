@@ -145,6 +145,7 @@ rete_cmd_sweep (int argc, char **argv)
                                 "validation_auc,"
                                 "best_step,restarts,train_seconds,infer_seconds_per_image\n");
   char **names = NULL, **meta = NULL;
+  SweepCell *cells = NULL; /* one per name */
   if (!rete_cli_parse (context, command, &argc, &argv))
     {
       status = RETE_EXIT_USAGE;
@@ -158,10 +159,10 @@ rete_cmd_sweep (int argc, char **argv)
       goto out;
     }
   names = g_strsplit (sizes ? sizes : "tiny,3x4x2,3x8x2,standard", ",", -1);
+  cells = g_new0 (SweepCell, g_strv_length (names));
   for (int i = 0; names[i] != NULL; i++)
     {
-      SweepCell c;
-      if (!parse_cell (g_strstrip (names[i]), &c, &error))
+      if (!parse_cell (g_strstrip (names[i]), &cells[i], &error))
         {
           status = rete_cli_usage_error (command, "%s", error->message);
           goto out;
@@ -185,8 +186,7 @@ rete_cmd_sweep (int argc, char **argv)
     {
       double sum = 0, sum2 = 0, infer = 0;
       gsize weights = 0;
-      SweepCell cell;
-      parse_cell (names[i], &cell, NULL);
+      const SweepCell cell = cells[i];
       ReteUnetConfig arch = cell.arch;
       int photographs = cell.photographs > 0 ? MIN (cell.photographs, (int) training->len)
                                              : (int) training->len;
@@ -240,6 +240,7 @@ out:
   g_clear_error (&error);
   g_string_free (rows, TRUE);
   g_strfreev (names);
+  g_free (cells);
   g_strfreev (meta);
   rete_model_free (prep);
   if (training) g_array_unref (training);
