@@ -27,10 +27,11 @@
  * The surround then has no influence at all on the result inside.
  * This file holds the checks and the order of the passes (each spread over the cores by
  * rete_parallel_for_chunks, whose kept worker threads cost little per pass); clahe_passes.c
- * the pixel passes (by rows); clahe_tiles.c the bins, histograms and mappings (by rows of
+ * the pixel passes (by rows); clahe_tiles.c the histograms and mappings (by rows of
  * tiles).
  */
 #include "clahe_private.h"
+#include "image_private.h"
 
 #include <math.h>
 #include <string.h>
@@ -162,15 +163,13 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
     }
 
   t->wide_bins = t->n_bins > 256; /* bins run up to n_bins - 1 */
-  t->bins = g_try_malloc ((t->wide_bins ? sizeof (guint16) : sizeof (guint8))
-                          * rete_image_n_pixels (grey));
-  if (t->bins == NULL)
+  if (fov != NULL && (t->inside = g_try_new (guint8, rete_image_n_pixels (grey))) == NULL)
     {
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
                    "not enough memory for CLAHE of a %d×%d image", grey->width, grey->height);
       goto fail;
     }
-  if (fov != NULL && (t->inside = g_try_new (guint8, rete_image_n_pixels (grey))) == NULL)
+  if ((t->levels = g_try_new (guint16, rete_image_n_pixels (grey))) == NULL)
     {
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
                    "not enough memory for CLAHE of a %d×%d image", grey->width, grey->height);
@@ -197,7 +196,7 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
                    "to [0, 1] first", c.g_min, c.g_max, fov ? " inside the field of view" : "");
       goto fail;
     }
-  result = rete_image_new_like (grey, 1, error);
+  result = rete_image_new_unset (grey->width, grey->height, 1, error); /* all written */
   if (result == NULL)
     goto fail;
   c.out = result->data;
@@ -276,15 +275,15 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
   g_free (mirror_y);
   g_free (lut);
   g_free (lut8);
-  g_free (t->bins);
   g_free (t->inside);
+  g_free (t->levels);
   g_mutex_clear (&c.lock);
   return result;
 
 fail:
   rete_image_free (result);
-  g_free (t->bins);
   g_free (t->inside);
+  g_free (t->levels);
   g_mutex_clear (&c.lock);
   return NULL;
 }

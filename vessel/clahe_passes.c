@@ -13,9 +13,12 @@
 #endif
 
 /* Pass 1: range of the input inside the FOV, whether the FOV has a pixel, values that are
- * not numbers (x - x is 0 for every finite x, NaN for NaN and infinities), and the FOV as a
- * byte mask. (The bins come in pass 2, from the grey values again, once the range is known:
- * reading the floats twice costs less than writing and reading back a 16-bit copy.) */
+ * not numbers (x - x is 0 for every finite x, NaN for NaN and infinities), the FOV as a
+ * byte mask, and the 16-bit level of every pixel: rint (v × 65535) as skimage's img_as_uint
+ * on float32 (SSE2's conversion rounds to nearest, ties to even, as np.rint), clamped to
+ * [0, 1] first since outside the FOV anything goes. (The bins come in pass 2 from the
+ * levels, once the range is known: reading half the bytes there, with no conversion, more
+ * than pays for writing them here.) */
 #ifdef __SSE2__
 /* Four bytes of the FOV byte mask (0/1) as a lane mask of four floats. */
 static inline __m128
@@ -55,14 +58,23 @@ rete_clahe_range_rows (int first, int last, gpointer data)
       const float *g = t->grey + (gsize) y * t->width;
       const float *f = t->fov ? t->fov + (gsize) y * t->width : NULL;
       guint8 *inside = t->inside ? t->inside + (gsize) y * t->width : NULL;
+      guint16 *levels = t->levels + (gsize) y * t->width;
       int x = 0;
 #ifdef __SSE2__
       __m128 lo4 = _mm_set1_ps (lo), hi4 = _mm_set1_ps (hi), bad4 = _mm_setzero_ps ();
       __m128 in4 = _mm_setzero_ps (), zero = _mm_setzero_ps (), half = _mm_set1_ps (0.5f);
       __m128 big = _mm_set1_ps (G_MAXFLOAT), small = _mm_set1_ps (-G_MAXFLOAT);
+      __m128 one = _mm_set1_ps (1.0f), scale = _mm_set1_ps (65535.0f);
+      __m128i half_range = _mm_set1_epi32 (32768), sign16 = _mm_set1_epi16 ((short) 0x8000);
       for (; x + 4 <= t->width; x += 4)
         {
           __m128 v = _mm_loadu_ps (g + x);
+          /* 0..65535, shifted to the signed range for the 16-bit pack and back */
+          __m128i level = _mm_cvtps_epi32 (_mm_mul_ps (_mm_min_ps (_mm_max_ps (v, zero), one),
+                                                       scale));
+          level = _mm_sub_epi32 (level, half_range);
+          level = _mm_xor_si128 (_mm_packs_epi32 (level, level), sign16);
+          _mm_storel_epi64 ((__m128i *) (levels + x), level);
           bad4 = _mm_or_ps (bad4, _mm_cmpneq_ps (_mm_sub_ps (v, v), zero));
           if (f != NULL)
             {
@@ -90,6 +102,7 @@ rete_clahe_range_rows (int first, int last, gpointer data)
       for (; x < t->width; x++)
         {
           float v = g[x];
+          levels[x] = (guint16) lrintf ((v > 0.0f ? (v < 1.0f ? v : 1.0f) : 0.0f) * 65535.0f);
           gboolean in = f == NULL || f[x] > 0.5f;
           if (inside != NULL)
             inside[x] = (guint8) in;
@@ -110,8 +123,9 @@ rete_clahe_range_rows (int first, int last, gpointer data)
   g_mutex_unlock (&c->lock);
 }
 
-/* Pass 2 (clahe_tiles.c): bins, histograms, mappings.
- * Pass 3: bilinear interpolation between the mappings of the four tiles around each pixel,
+/* Pass 2 (clahe_tiles.c): histograms, mappings.
+ * Pass 3: bilinear interpolation between the mappings of the four tiles around each pixel
+ * (at the bin of the pixel's 16-bit level, through the table of pass 2 again),
  * and the range of the result inside the FOV (taken on the way, so that the result is not
  * read again for it). `pairs` holds, for each row of blocks, the mappings of the tile above
  * and below side by side, so that one 8-byte load brings both; the vertical blend comes
@@ -131,9 +145,10 @@ interpolate_rows (ReteClahe *c, int first, int last, gboolean wide)
       float wy = (float) ((double) (p % t->kh) / t->kh);
       const float *block_row = c->pairs + (gsize) j * t->nx * nb * 2;
       gsize row = (gsize) y * t->width;
-      const guint8 *b8 = (const guint8 *) t->bins + row;
-      const guint16 *b16 = (const guint16 *) t->bins + row;
-#define BIN(x) (wide ? (int) b16[x] : (int) b8[x])
+      const guint16 *q = t->levels + row;
+      const guint8 *l8 = t->lut;
+      const guint16 *l16 = t->lut;
+#define BIN(x) (wide ? (int) l16[q[x]] : (int) l8[q[x]])
       const guint8 *f = t->inside ? t->inside + row : NULL;
       float *out = c->out + row;
       /* column x sits at x + kw/2 on the grid of blocks; block jx blends tiles jx-1 and jx */

@@ -13,6 +13,7 @@ typedef struct {
   const float *grey;      /* (height, width) values in [0, 1] */
   const float *fov;       /* (height, width) 0/1, or NULL */
   guint8 *inside;         /* (height, width) 1 where fov > 0.5 (made by pass 1), or NULL */
+  guint16 *levels;        /* (height, width) 16-bit level of each pixel (made by pass 1) */
   int width, height;
   int kw, kh;             /* tile (contextual region) size, pixels */
   int nx, ny;             /* tiles across and down: ceil(width / kw), ceil(height / kh) */
@@ -20,9 +21,8 @@ typedef struct {
   double clip_limit;      /* normalised, (0, 1] */
   const int *mirror_x;    /* (nx * kw) column read at each position of the tile grid */
   const int *mirror_y;    /* (ny * kh) */
-  gboolean wide_bins;     /* bins are guint16 (n_bins > 256), else guint8 */
-  const void *lut;        /* (65536) 16-bit value -> bin, guint8 or guint16 as the bins */
-  void *bins;             /* (height, width) bin of each pixel, made by rete_clahe_tile_maps */
+  gboolean wide_bins;     /* n_bins > 256: the table holds guint16, else guint8 */
+  const void *lut;        /* (65536) 16-bit level -> bin: guint8, or guint16 when wide_bins */
   guint32 *hist;          /* (ny, nx, n_bins) */
   gint64 *count;          /* (ny, nx) pixels that entered each histogram */
   float *maps;            /* (ny, nx, n_bins) mapping of each bin, 0..16383 */
@@ -41,16 +41,17 @@ typedef struct {
   float v_min, v_max;     /* interpolated range inside the FOV */
 } ReteClahe;
 
-/* Pass 1: input range inside the FOV, NaN/infinity, FOV not empty, the FOV byte mask. */
+/* Pass 1: input range inside the FOV, NaN/infinity, FOV not empty, the FOV byte mask, the
+ * 16-bit levels. */
 G_GNUC_INTERNAL void rete_clahe_range_rows (int first, int last, gpointer data);
 /* Pass 3: bilinear interpolation of the tile mappings, and the range of the result. */
 G_GNUC_INTERNAL void rete_clahe_interpolate_rows (int first, int last, gpointer data);
 /* Pass 4: the result stretched to [0, 1] inside the FOV, 0 outside. */
 G_GNUC_INTERNAL void rete_clahe_stretch_rows (int first, int last, gpointer data);
 
-/* Pass 2, rows of tiles first .. last - 1: bins of every pixel (into `bins`, from the grey
- * values), histograms of the tiles (read mirrored past the edges, FOV pixels only when
- * fov != NULL), clipped, turned into mappings. */
+/* Pass 2, rows of tiles first .. last - 1: histograms of the tiles over the bins of the
+ * 16-bit levels (read mirrored past the edges, FOV pixels only when fov != NULL), clipped,
+ * turned into mappings. */
 G_GNUC_INTERNAL void rete_clahe_tile_rows (int first, int last, gpointer tiles);
 /* After pass 2, with a FOV: tiles that saw too few pixels take their neighbours' mappings. */
 G_GNUC_INTERNAL void rete_clahe_fill_missing_maps (ReteClaheTiles *tiles);

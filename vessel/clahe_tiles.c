@@ -68,40 +68,17 @@ rete_clahe_clip_histogram (guint32 *hist, int n, gint64 clip)
     }
 }
 
-/* 16-bit values of one row of grey values: rint (v × 65535) as skimage's img_as_uint on
- * float32 (SSE2's conversion rounds to nearest, ties to even, as np.rint; values are
- * clamped to [0, 1] first since outside the FOV anything goes). */
-static void
-row_values (const float *grey, int width, gint32 *values)
-{
-  int x = 0;
-#ifdef __SSE2__
-  __m128 zero = _mm_setzero_ps (), one = _mm_set1_ps (1.0f), scale = _mm_set1_ps (65535.0f);
-  for (; x + 4 <= width; x += 4)
-    {
-      __m128 v = _mm_min_ps (_mm_max_ps (_mm_loadu_ps (grey + x), zero), one);
-      _mm_storeu_si128 ((__m128i *) (values + x), _mm_cvtps_epi32 (_mm_mul_ps (v, scale)));
-    }
-#endif
-  for (; x < width; x++)
-    {
-      float v = grey[x];
-      values[x] = (gint32) lrintf ((v > 0.0f ? (v < 1.0f ? v : 1.0f) : 0.0f) * 65535.0f);
-    }
-}
+/* The bin of the 16-bit level q[x], through the table that stretches the levels over the
+ * range seen and bins them. (The bins are not stored: the interpolation takes them from the
+ * table again, which costs less than a store per pixel here; measured 10-17% faster in
+ * all on the bench picture.) */
+#define BIN(x) (wide ? (int) ((const guint16 *) lut)[q[x]] : (int) ((const guint8 *) lut)[q[x]])
 
-/* The bin of the 16-bit value q[x] through the table that stretches the values over the
- * range seen and bins them, stored as the pixel's bin. */
-#define TAKE_BIN(x) \
-  (wide ? (int) (((guint16 *) b)[x] = ((const guint16 *) lut)[q[x]]) \
-        : (int) (((guint8 *) b)[x] = ((const guint8 *) lut)[q[x]]))
-#define BIN(x) (wide ? (int) ((const guint16 *) b)[x] : (int) ((const guint8 *) b)[x])
-
-/* One image row (its 16-bit values q, FOV mask f or NULL) into its bins b and the
- * histograms of a row of tiles, in one go over the row. */
+/* One image row (its 16-bit levels q, FOV mask f or NULL) into the histograms of a row of
+ * tiles, in one go over the row. */
 static inline __attribute__ ((always_inline)) void
-histogram_row (const ReteClaheTiles *c, const gint32 *q, const void *lut, void *b,
-               const guint8 *f, guint32 *row_hist, guint32 *more, gsize row_size,
+histogram_row (const ReteClaheTiles *c, const guint16 *q, const void *lut, const guint8 *f,
+               guint32 *row_hist, guint32 *more, gsize row_size,
                gint64 *row_count, gboolean wide)
 {
   for (int tx = 0; tx < c->nx; tx++)
@@ -115,13 +92,13 @@ histogram_row (const ReteClaheTiles *c, const gint32 *q, const void *lut, void *
           int x = x0;
           for (; x + 4 <= x1; x += 4)
             {
-              h[TAKE_BIN (x)]++;
-              h1[TAKE_BIN (x + 1)]++;
-              h2[TAKE_BIN (x + 2)]++;
-              h3[TAKE_BIN (x + 3)]++;
+              h[BIN (x)]++;
+              h1[BIN (x + 1)]++;
+              h2[BIN (x + 2)]++;
+              h3[BIN (x + 3)]++;
             }
           for (; x < x1; x++)
-            h[TAKE_BIN (x)]++;
+            h[BIN (x)]++;
           n_in = c->kw;
         }
       else if (x1 <= c->width)
@@ -131,49 +108,48 @@ histogram_row (const ReteClaheTiles *c, const gint32 *q, const void *lut, void *
           for (; x + 4 <= x1; x += 4)
             {
               int i0 = f[x], i1 = f[x + 1], i2 = f[x + 2], i3 = f[x + 3];
-              h[TAKE_BIN (x)] += i0;
-              h1[TAKE_BIN (x + 1)] += i1;
-              h2[TAKE_BIN (x + 2)] += i2;
-              h3[TAKE_BIN (x + 3)] += i3;
+              h[BIN (x)] += i0;
+              h1[BIN (x + 1)] += i1;
+              h2[BIN (x + 2)] += i2;
+              h3[BIN (x + 3)] += i3;
               n_in += i0 + i1 + i2 + i3;
             }
           for (; x < x1; x++)
             {
               int in = f[x];
-              h[TAKE_BIN (x)] += in;
+              h[BIN (x)] += in;
               n_in += in;
             }
         }
       else
         {
-          /* the last tile reaches past the image: the rest of the row's bins first, then
-           * the tile read mirrored */
+          /* the last tile reaches past the image: the rest of the row, then the tile read
+           * mirrored past the edge (spread over the four counters too: the mirrored part
+           * can be most of the tile) */
+          guint32 *four[4] = { h, h1, h2, h3 };
           for (int x = x0; x < c->width; x++)
-            TAKE_BIN (x);
-          for (int p = x0; p < x1; p++)
             {
-              int x = c->mirror_x[p];
-              if (f == NULL || f[x])
-                {
-                  h[BIN (x)]++;
-                  n_in++;
-                }
+              int in = f == NULL || f[x];
+              four[x & 3][BIN (x)] += in;
+              n_in += in;
+            }
+          for (int p = c->width; p < x1; p++)
+            {
+              int x = c->mirror_x[p], in = f == NULL || f[x];
+              four[p & 3][BIN (x)] += in;
+              n_in += in;
             }
         }
       row_count[tx] += n_in;
     }
 }
 
-#undef TAKE_BIN
 #undef BIN
 
 /* Rows of tiles: bins, histograms, clipping, mappings. */
 static inline __attribute__ ((always_inline)) void
 tile_rows (ReteClaheTiles *c, int first, int last, gboolean wide)
 {
-  gsize bin_size = wide ? sizeof (guint16) : sizeof (guint8);
-  void *mirrored_row = g_malloc (bin_size * c->width);
-  gint32 *values = g_new (gint32, c->width);
   /* Three more histograms per tile: neighbouring pixels count into different ones, so that
    * runs of equal bins (smooth regions) do not wait on one counter (measured 20-35% faster
    * on the bench picture). */
@@ -189,13 +165,8 @@ tile_rows (ReteClaheTiles *c, int first, int last, gboolean wide)
       for (int r = ty * c->kh; r < (ty + 1) * c->kh; r++)
         {
           gsize row = (gsize) c->mirror_y[r] * c->width;
-          /* rows of the image get their bins here (each in one tile row only); rows read
-           * mirrored past the bottom are binned again into a private row (they belong to
-           * another worker's tiles) */
-          void *b = r < c->height ? (guint8 *) c->bins + bin_size * row : mirrored_row;
-          row_values (c->grey + row, c->width, values);
           const guint8 *f = c->inside ? c->inside + row : NULL;
-          histogram_row (c, values, c->lut, b, f, row_hist, more, row_size, row_count, wide);
+          histogram_row (c, c->levels + row, c->lut, f, row_hist, more, row_size, row_count, wide);
         }
       for (gsize k = 0; k < row_size; k++)
         row_hist[k] += more[k] + more[k + row_size] + more[k + 2 * row_size];
@@ -217,8 +188,6 @@ tile_rows (ReteClaheTiles *c, int first, int last, gboolean wide)
             }
         }
     }
-  g_free (mirrored_row);
-  g_free (values);
   g_free (more);
 }
 

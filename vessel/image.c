@@ -1,13 +1,15 @@
 /* image.c — the planar float image type: allocation, copies, regions, checks. */
-#include "rete_image.h"
+#include "image_private.h"
 
 #include <math.h>
 #include <string.h>
 
 G_DEFINE_QUARK (rete-vessel-error-quark, rete_vessel_error)
 
-ReteImage *
-rete_image_new (int width, int height, int channels, GError **error)
+/* rete_image_new, with the pixels zeroed or (for a caller that writes every pixel) left as
+ * they come: a zero-fill of a large image is a pass over memory of its own. */
+static ReteImage *
+image_new (int width, int height, int channels, gboolean zeroed, GError **error)
 {
   if (width <= 0 || height <= 0)
     {
@@ -32,7 +34,7 @@ rete_image_new (int width, int height, int channels, GError **error)
       return NULL;
     }
   gsize n = (gsize) width * height * channels;
-  float *data = g_try_malloc0 (n * sizeof (float));
+  float *data = zeroed ? g_try_malloc0 (n * sizeof (float)) : g_try_malloc (n * sizeof (float));
   if (data == NULL)
     {
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
@@ -46,6 +48,18 @@ rete_image_new (int width, int height, int channels, GError **error)
   image->channels = channels;
   image->data = data;
   return image;
+}
+
+ReteImage *
+rete_image_new (int width, int height, int channels, GError **error)
+{
+  return image_new (width, height, channels, TRUE, error);
+}
+
+ReteImage *
+rete_image_new_unset (int width, int height, int channels, GError **error)
+{
+  return image_new (width, height, channels, FALSE, error);
 }
 
 ReteImage *
