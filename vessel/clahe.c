@@ -163,13 +163,10 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
     }
 
   t->wide_bins = t->n_bins > 256; /* bins run up to n_bins - 1 */
-  if (fov != NULL && (t->inside = g_try_new (guint8, rete_image_n_pixels (grey))) == NULL)
-    {
-      g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
-                   "not enough memory for CLAHE of a %d×%d image", grey->width, grey->height);
-      goto fail;
-    }
-  if ((t->levels = g_try_new (guint16, rete_image_n_pixels (grey))) == NULL)
+  t->levels = g_try_new (guint16, rete_image_n_pixels (grey));
+  if (fov != NULL)
+    t->inside = g_try_new (guint8, rete_image_n_pixels (grey));
+  if (t->levels == NULL || (fov != NULL && t->inside == NULL))
     {
       g_set_error (error, RETE_VESSEL_ERROR, RETE_ERROR_NO_MEMORY,
                    "not enough memory for CLAHE of a %d×%d image", grey->width, grey->height);
@@ -205,8 +202,7 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
    * staircase (every step is monotone), so each step's first value is found by bisection
    * rather than by evaluating all 65536 entries. */
   int u_min = (int) rint (c.g_min * 65535.0f), u_max = (int) rint (c.g_max * 65535.0f);
-  guint16 *lut = t->wide_bins ? g_new (guint16, 65536) : NULL;
-  guint8 *lut8 = t->wide_bins ? NULL : g_new (guint8, 65536);
+  void *lut = g_malloc ((t->wide_bins ? sizeof (guint16) : sizeof (guint8)) * 65536);
   int u = 0;
   while (u < 65536)
     {
@@ -220,14 +216,13 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
           else
             hi = mid - 1;
         }
-      if (lut != NULL)
-        for (; u <= lo; u++)
-          lut[u] = (guint16) bin;
-      else
-        for (; u <= lo; u++)
-          lut8[u] = (guint8) bin;
+      for (; u <= lo; u++)
+        if (t->wide_bins)
+          ((guint16 *) lut)[u] = (guint16) bin;
+        else
+          ((guint8 *) lut)[u] = (guint8) bin;
     }
-  t->lut = t->wide_bins ? (const void *) lut : lut8;
+  t->lut = lut;
 
   int *mirror_x = g_new (int, (gsize) t->nx * t->kw);
   int *mirror_y = g_new (int, (gsize) t->ny * t->kh);
@@ -274,7 +269,6 @@ rete_clahe (const ReteImage *grey, const ReteImage *fov, const ReteClaheParams *
   g_free (mirror_x);
   g_free (mirror_y);
   g_free (lut);
-  g_free (lut8);
   g_free (t->inside);
   g_free (t->levels);
   g_mutex_clear (&c.lock);

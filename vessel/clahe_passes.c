@@ -135,6 +135,7 @@ interpolate_rows (ReteClahe *c, int first, int last, gboolean wide)
 {
   const ReteClaheTiles *t = &c->tiles;
   int nb = t->n_bins, kw = t->kw;
+  const void *lut = t->lut;
   float lo = G_MAXFLOAT, hi = -G_MAXFLOAT;
 #ifdef __SSE2__
   __m128 lo4 = _mm_set1_ps (lo), hi4 = _mm_set1_ps (hi);
@@ -146,9 +147,7 @@ interpolate_rows (ReteClahe *c, int first, int last, gboolean wide)
       const float *block_row = c->pairs + (gsize) j * t->nx * nb * 2;
       gsize row = (gsize) y * t->width;
       const guint16 *q = t->levels + row;
-      const guint8 *l8 = t->lut;
-      const guint16 *l16 = t->lut;
-#define BIN(x) (wide ? (int) l16[q[x]] : (int) l8[q[x]])
+#define BIN(x) rete_clahe_bin (lut, q[x], wide)
       const guint8 *f = t->inside ? t->inside + row : NULL;
       float *out = c->out + row;
       /* column x sits at x + kw/2 on the grid of blocks; block jx blends tiles jx-1 and jx */

@@ -28,6 +28,14 @@ typedef struct {
   float *maps;            /* (ny, nx, n_bins) mapping of each bin, 0..16383 */
 } ReteClaheTiles;
 
+/* The bin of a 16-bit level, through the table (ReteClaheTiles.lut) that stretches the levels over the range
+ * seen and bins them (passes 2 and 3 both take the bins from it: they are not stored). */
+static inline int
+rete_clahe_bin (const void *lut, guint16 level, gboolean wide)
+{
+  return wide ? (int) ((const guint16 *) lut)[level] : (int) ((const guint8 *) lut)[level];
+}
+
 /* Everything the pixel passes (clahe_passes.c) share. */
 typedef struct {
   ReteClaheTiles tiles;
