@@ -207,7 +207,6 @@ run_job (Job *job, int n_threads)
 {
   job->next = 0;
   job->users = 0;
-  job->link = NULL;
   g_mutex_lock (&pool.lock);
   pool_grow (n_threads);
   job->link = pool.open;
